@@ -1,0 +1,570 @@
+"""Compiled inner loops of the placement search (numba).
+
+Kept apart from :mod:`stitch.search` so the Python driver stays readable and
+so ``bench/search_jit.py`` can time each kernel with and without compilation
+(``kernel.py_func``).
+
+All kernels grow a placement on a canvas of ``(2 R + 1) x (2 C + 1)`` cells
+around a seed tile at ``(R, C)`` and never let the placed block grow beyond
+``R`` rows or ``C`` columns; :func:`canvas_to_grid` crops it to ``R x C``.
+Orientation codes and side slots are those of :mod:`stitch.layout`; a partner
+*code* is ``2 * slot + flip``.
+"""
+
+import numpy as np
+from numba import njit
+
+# face[o, d]: side of the tile file facing direction d under orientation o.
+FACE = np.array(
+    [[(d - r) % 4 if m == 0 else (r - d) % 4 for d in range(4)] for m in range(2) for r in range(4)],
+    dtype=np.int64,
+)
+DROW = np.array([-1, 0, 1, 0], dtype=np.int64)
+DCOL = np.array([0, 1, 0, -1], dtype=np.int64)
+
+
+@njit(cache=True)
+def seam_cost(blocks, bidx, btr, x, ox, d, y, oy):
+    """Cost of tile y (orientation oy) lying in direction d of tile x (ox)."""
+    a = FACE[ox, d]
+    b = FACE[oy, (d + 2) % 4]
+    f = 1 if (ox >= 4) != (oy >= 4) else 0
+    idx = bidx[a, b, f]
+    if idx < 0:
+        return np.inf
+    if btr[a, b, f]:
+        return blocks[idx, y, x]
+    return blocks[idx, x, y]
+
+
+@njit(cache=True)
+def orientation_for(ox, d, t, f):
+    """Orientation that makes side t of a tile face back at x (x at ox, looking in d)."""
+    my = (1 if ox >= 4 else 0) ^ f
+    dd = (d + 2) % 4
+    if my == 0:
+        r = (dd - t + 4) % 4
+    else:
+        r = (t + dd) % 4
+    return my * 4 + r
+
+
+@njit(cache=True)
+def _in_extent(r, c, ext, nrows, ncols):
+    r0 = min(ext[0], r)
+    r1 = max(ext[1], r)
+    c0 = min(ext[2], c)
+    c1 = max(ext[3], c)
+    return (r1 - r0) < nrows and (c1 - c0) < ncols
+
+
+@njit(cache=True)
+def _set(ct, co, ext, cw, cell, tile, o, used):
+    ct[cell] = tile
+    co[cell] = o
+    used[tile] = True
+    r = cell // cw
+    c = cell % cw
+    ext[0] = min(ext[0], r)
+    ext[1] = max(ext[1], r)
+    ext[2] = min(ext[2], c)
+    ext[3] = max(ext[3], c)
+
+
+@njit(cache=True)
+def canvas_to_grid(ct, co, ext, nrows, ncols, cw):
+    """Crop a canvas to an ``nrows x ncols`` grid of tiles and orientations."""
+    gt = np.full((nrows, ncols), -1, np.int64)
+    go = np.zeros((nrows, ncols), np.int64)
+    for i in range(nrows):
+        for j in range(ncols):
+            cell = (ext[0] + i) * cw + ext[2] + j
+            if ext[0] + i <= ext[1] and ext[2] + j <= ext[3]:
+                gt[i, j] = ct[cell]
+                go[i, j] = co[cell]
+    return gt, go
+
+
+@njit(cache=True)
+def _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb):
+    """Greedy score of tile y (oy) at a free cell: mean confidence of its seams,
+    plus 2 when it is the best buddy of every placed neighbour."""
+    r = cell // cw
+    c = cell % cw
+    total = 0.0
+    count = 0
+    all_bb = True
+    for d in range(4):
+        nr = r + DROW[d]
+        nc = c + DCOL[d]
+        if nr < 0 or nc < 0 or nr >= ch or nc >= cw:
+            continue
+        x = ct[nr * cw + nc]
+        if x < 0:
+            continue
+        ox = co[nr * cw + nc]
+        dx = (d + 2) % 4
+        cost = seam_cost(blocks, bidx, btr, x, ox, dx, y, oy)
+        kx = 4 * x + FACE[ox, dx]
+        sec = second[kx]
+        total += (1.0 - cost / sec) if sec > 0 else (0.0 if cost == 0 else -1.0)
+        count += 1
+        flip = 1 if (ox >= 4) != (oy >= 4) else 0
+        if bb[kx] != 2 * (4 * y + FACE[oy, d]) + flip:
+            all_bb = False
+    if count == 0:
+        return -np.inf
+    s = total / count
+    if all_bb:
+        s += 2.0
+    return s
+
+
+@njit(cache=True)
+def _best_for_cell(ct, co, cw, ch, cell, used, n, blocks, bidx, btr, cand, second, bb, allowed, kfree):
+    r = cell // cw
+    c = cell % cw
+    best_s = -np.inf
+    best_y = -1
+    best_o = 0
+    seen_any = False
+    for d in range(4):
+        nr = r + DROW[d]
+        nc = c + DCOL[d]
+        if nr < 0 or nc < 0 or nr >= ch or nc >= cw:
+            continue
+        x = ct[nr * cw + nc]
+        if x < 0:
+            continue
+        ox = co[nr * cw + nc]
+        dx = (d + 2) % 4
+        kx = 4 * x + FACE[ox, dx]
+        free = 0
+        for q in range(cand.shape[1]):
+            code = cand[kx, q]
+            if code < 0:
+                break
+            l = code // 2
+            y = l // 4
+            if used[y]:
+                continue
+            oy = orientation_for(ox, dx, l % 4, code % 2)
+            if not allowed[oy]:
+                continue
+            seen_any = True
+            s = _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb)
+            if s > best_s:
+                best_s = s
+                best_y = y
+                best_o = oy
+            free += 1
+            if free >= kfree:
+                break
+    if not seen_any:
+        # Candidate lists exhausted: look at every free tile.
+        for y in range(n):
+            if used[y]:
+                continue
+            for oy in range(8):
+                if not allowed[oy]:
+                    continue
+                s = _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb)
+                if s > best_s or best_y < 0:
+                    best_s = s
+                    best_y = y
+                    best_o = oy
+    return best_y, best_o, best_s
+
+
+@njit(cache=True)
+def greedy(seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, cand, second, bb, allowed, kfree):
+    """Greedy best-buddy placement (after Paikin & Tal, CVPR 2015).
+
+    Repeatedly fills the free cell, next to placed tiles, whose best tile
+    scores highest: best buddies of all placed neighbours first, then by the
+    mean normalised seam confidence. Returns ``(tiles, orientations)`` grids.
+    """
+    ch = 2 * nrows + 1
+    cw = 2 * ncols + 1
+    ct = np.full(ch * cw, -1, np.int64)
+    co = np.zeros(ch * cw, np.int64)
+    used = np.zeros(n, np.bool_)
+    ext = np.array([nrows, nrows, ncols, ncols], np.int64)
+    in_fr = np.zeros(ch * cw, np.bool_)
+    fr = np.empty(ch * cw, np.int64)
+    nfr = 0
+    c_t = np.full(ch * cw, -1, np.int64)
+    c_o = np.zeros(ch * cw, np.int64)
+    c_s = np.full(ch * cw, -np.inf)
+    c_ok = np.zeros(ch * cw, np.bool_)
+    cell = nrows * cw + ncols
+    _set(ct, co, ext, cw, cell, seed_tile, seed_o, used)
+    placed = 1
+    while True:
+        r = cell // cw
+        c = cell % cw
+        for d in range(4):
+            nr = r + DROW[d]
+            nc = c + DCOL[d]
+            if nr < 0 or nc < 0 or nr >= ch or nc >= cw:
+                continue
+            nb = nr * cw + nc
+            if ct[nb] >= 0:
+                continue
+            c_ok[nb] = False
+            if not in_fr[nb]:
+                in_fr[nb] = True
+                fr[nfr] = nb
+                nfr += 1
+        if placed >= n:
+            break
+        best_s = -np.inf
+        best_cell = -1
+        i = 0
+        while i < nfr:
+            f = fr[i]
+            if ct[f] >= 0 or not _in_extent(f // cw, f % cw, ext, nrows, ncols):
+                in_fr[f] = False
+                fr[i] = fr[nfr - 1]
+                nfr -= 1
+                continue
+            if not c_ok[f] or (c_t[f] >= 0 and used[c_t[f]]):
+                y, o, s = _best_for_cell(ct, co, cw, ch, f, used, n, blocks, bidx, btr, cand, second, bb,
+                                         allowed, kfree)
+                c_t[f] = y
+                c_o[f] = o
+                c_s[f] = s
+                c_ok[f] = True
+            if c_t[f] >= 0 and (best_cell < 0 or c_s[f] > best_s):
+                best_s = c_s[f]
+                best_cell = f
+            i += 1
+        if best_cell < 0:
+            break
+        cell = best_cell
+        _set(ct, co, ext, cw, cell, c_t[cell], c_o[cell], used)
+        placed += 1
+    return canvas_to_grid(ct, co, ext, nrows, ncols, cw)
+
+
+@njit(cache=True)
+def partners(gt, go, n):
+    """Partner code of every side slot in a grid (-1 on the border or by holes)."""
+    p = np.full(4 * n, -1, np.int64)
+    nrows, ncols = gt.shape
+    for i in range(nrows):
+        for j in range(ncols):
+            x = gt[i, j]
+            if x < 0:
+                continue
+            ox = go[i, j]
+            for d in range(4):
+                ni = i + DROW[d]
+                nj = j + DCOL[d]
+                if ni < 0 or nj < 0 or ni >= nrows or nj >= ncols:
+                    continue
+                y = gt[ni, nj]
+                if y < 0:
+                    continue
+                oy = go[ni, nj]
+                flip = 1 if (ox >= 4) != (oy >= 4) else 0
+                p[4 * x + FACE[ox, d]] = 2 * (4 * y + FACE[oy, (d + 2) % 4]) + flip
+    return p
+
+
+@njit(cache=True)
+def fitness(gt, go, blocks, bidx, btr):
+    """Total seam cost of a grid: the search minimises it."""
+    nrows, ncols = gt.shape
+    total = 0.0
+    for i in range(nrows):
+        for j in range(ncols):
+            x = gt[i, j]
+            if x < 0:
+                continue
+            if j + 1 < ncols and gt[i, j + 1] >= 0:
+                total += seam_cost(blocks, bidx, btr, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1])
+            if i + 1 < nrows and gt[i + 1, j] >= 0:
+                total += seam_cost(blocks, bidx, btr, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j])
+    return total
+
+
+@njit(cache=True)
+def _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3):
+    x = ct[cell]
+    ox = co[cell]
+    r = cell // cw
+    c = cell % cw
+    for d in range(4):
+        nr = r + DROW[d]
+        nc = c + DCOL[d]
+        if nr < 0 or nc < 0 or nr >= ch or nc >= cw or ct[nr * cw + nc] >= 0:
+            continue
+        k = 4 * x + FACE[ox, d]
+        s3[n3, 0] = cell
+        s3[n3, 1] = d
+        n3 += 1
+        a = pa[k]
+        b = pb[k]
+        if a >= 0 and a == b:
+            s1[n1, 0] = cell
+            s1[n1, 1] = d
+            s1[n1, 2] = a
+            n1 += 1
+        elif bb[k] >= 0 and (bb[k] == a or bb[k] == b):
+            s2[n2, 0] = cell
+            s2[n2, 1] = d
+            s2[n2, 2] = bb[k]
+            n2 += 1
+    return n1, n2, n3
+
+
+@njit(cache=True)
+def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, cand, bb, allowed,
+              mutation, rseed):
+    """Grow a child from two parents (Sholomon, David & Netanyahu, CVPR 2013).
+
+    From a seed tile the child grows one seam at a time: first seams both
+    parents agree on, then best-buddy seams that either parent holds, then,
+    at a random boundary, the most compatible free tile (a random one with
+    probability ``mutation``). Correctly assembled segments present in both
+    parents therefore survive whole.
+
+    Parameters
+    ----------
+    pa, pb : ndarray of int64
+        Partner codes of the parents (:func:`partners`).
+    rseed : int
+        Seeds numba's generator, so a child depends only on its inputs.
+    """
+    np.random.seed(rseed)
+    ch = 2 * nrows + 1
+    cw = 2 * ncols + 1
+    ct = np.full(ch * cw, -1, np.int64)
+    co = np.zeros(ch * cw, np.int64)
+    used = np.zeros(n, np.bool_)
+    ext = np.array([nrows, nrows, ncols, ncols], np.int64)
+    s1 = np.empty((4 * n + 4, 3), np.int64)
+    s2 = np.empty((4 * n + 4, 3), np.int64)
+    s3 = np.empty((4 * n + 4, 2), np.int64)
+    n1 = 0
+    n2 = 0
+    n3 = 0
+    n_allowed = 0
+    allowed_list = np.empty(8, np.int64)
+    for o in range(8):
+        if allowed[o]:
+            allowed_list[n_allowed] = o
+            n_allowed += 1
+    cell = nrows * cw + ncols
+    _set(ct, co, ext, cw, cell, seed_tile, seed_o, used)
+    n1, n2, n3 = _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3)
+    placed = 1
+    while placed < n:
+        tgt = -1
+        ty = -1
+        to = 0
+        # Phases 1 and 2: seams both parents share, then best buddies one holds.
+        for phase in range(2):
+            while tgt < 0:
+                if phase == 0:
+                    if n1 == 0:
+                        break
+                    n1 -= 1
+                    src, d, code = s1[n1, 0], s1[n1, 1], s1[n1, 2]
+                else:
+                    if n2 == 0:
+                        break
+                    n2 -= 1
+                    src, d, code = s2[n2, 0], s2[n2, 1], s2[n2, 2]
+                cell2 = src + DROW[d] * cw + DCOL[d]
+                if ct[cell2] >= 0 or not _in_extent(cell2 // cw, cell2 % cw, ext, nrows, ncols):
+                    continue
+                y = (code // 2) // 4
+                if used[y]:
+                    continue
+                oy = orientation_for(co[src], d, (code // 2) % 4, code % 2)
+                if not allowed[oy]:
+                    continue
+                tgt = cell2
+                ty = y
+                to = oy
+            if tgt >= 0:
+                break
+        # Phase 3: a random boundary gets its most compatible free tile.
+        while tgt < 0 and n3 > 0:
+            q = np.random.randint(n3)
+            src, d = s3[q, 0], s3[q, 1]
+            s3[q, 0] = s3[n3 - 1, 0]
+            s3[q, 1] = s3[n3 - 1, 1]
+            n3 -= 1
+            cell2 = src + DROW[d] * cw + DCOL[d]
+            if ct[cell2] >= 0 or not _in_extent(cell2 // cw, cell2 % cw, ext, nrows, ncols):
+                continue
+            x = ct[src]
+            ox = co[src]
+            if np.random.random() < mutation:
+                k = np.random.randint(n - placed)
+                for y in range(n):
+                    if not used[y]:
+                        if k == 0:
+                            ty = y
+                            break
+                        k -= 1
+                to = allowed_list[np.random.randint(n_allowed)]
+            else:
+                kx = 4 * x + FACE[ox, d]
+                for qq in range(cand.shape[1]):
+                    code = cand[kx, qq]
+                    if code < 0:
+                        break
+                    y = (code // 2) // 4
+                    if used[y]:
+                        continue
+                    oy = orientation_for(ox, d, (code // 2) % 4, code % 2)
+                    if allowed[oy]:
+                        ty = y
+                        to = oy
+                        break
+                if ty < 0:
+                    best = np.inf
+                    for y in range(n):
+                        if used[y]:
+                            continue
+                        for oi in range(n_allowed):
+                            oy = allowed_list[oi]
+                            cst = seam_cost(blocks, bidx, btr, x, ox, d, y, oy)
+                            if ty < 0 or cst < best:
+                                best = cst
+                                ty = y
+                                to = oy
+            tgt = cell2
+        if tgt < 0:
+            break
+        _set(ct, co, ext, cw, tgt, ty, to, used)
+        placed += 1
+        n1, n2, n3 = _push(ct, co, cw, ch, tgt, pa, pb, bb, s1, n1, s2, n2, s3, n3)
+    return canvas_to_grid(ct, co, ext, nrows, ncols, cw)
+
+
+@njit(cache=True)
+def _cell_cost(gt, go, i, j, blocks, bidx, btr):
+    """Cost of the seams around cell (i, j)."""
+    nrows, ncols = gt.shape
+    x = gt[i, j]
+    if x < 0:
+        return 0.0
+    total = 0.0
+    for d in range(4):
+        ni = i + DROW[d]
+        nj = j + DCOL[d]
+        if ni < 0 or nj < 0 or ni >= nrows or nj >= ncols:
+            continue
+        y = gt[ni, nj]
+        if y >= 0:
+            total += seam_cost(blocks, bidx, btr, x, go[i, j], d, y, go[ni, nj])
+    return total
+
+
+@njit(cache=True)
+def _pair_cost(gt, go, i1, j1, i2, j2, blocks, bidx, btr):
+    """Cost of the seams around two cells, a shared seam counted once."""
+    total = _cell_cost(gt, go, i1, j1, blocks, bidx, btr) + _cell_cost(gt, go, i2, j2, blocks, bidx, btr)
+    if abs(i1 - i2) + abs(j1 - j2) == 1 and gt[i1, j1] >= 0 and gt[i2, j2] >= 0:
+        for d in range(4):
+            if i1 + DROW[d] == i2 and j1 + DCOL[d] == j2:
+                total -= seam_cost(blocks, bidx, btr, gt[i1, j1], go[i1, j1], d, gt[i2, j2], go[i2, j2])
+    return total
+
+
+@njit(cache=True)
+def improve(gt, go, n, blocks, bidx, btr, cand, allowed, fixed, max_passes, per_side):
+    """Local search: swap tiles and turn them while the total cost drops.
+
+    Only swaps that bring in a top candidate of a neighbour's facing side are
+    tried, so one pass costs O(n) and not O(n^2). ``fixed[t]`` tiles never
+    move. Works in place; returns the number of accepted moves.
+    """
+    nrows, ncols = gt.shape
+    pos = np.full(n, -1, np.int64)
+    for i in range(nrows):
+        for j in range(ncols):
+            if gt[i, j] >= 0:
+                pos[gt[i, j]] = i * ncols + j
+    moves = 0
+    for _ in range(max_passes):
+        changed = 0
+        for i in range(nrows):
+            for j in range(ncols):
+                x = gt[i, j]
+                if x < 0 or fixed[x]:
+                    continue
+                # Turns in place.
+                before = _cell_cost(gt, go, i, j, blocks, bidx, btr)
+                ox = go[i, j]
+                best_o = ox
+                for o in range(8):
+                    if not allowed[o] or o == ox:
+                        continue
+                    go[i, j] = o
+                    c = _cell_cost(gt, go, i, j, blocks, bidx, btr)
+                    if c < before - 1e-6 * (1.0 + before):
+                        before = c
+                        best_o = o
+                go[i, j] = best_o
+                if best_o != ox:
+                    changed += 1
+                # Swaps with candidates of the neighbours' facing sides.
+                for d in range(4):
+                    ni = i + DROW[d]
+                    nj = j + DCOL[d]
+                    if ni < 0 or nj < 0 or ni >= nrows or nj >= ncols:
+                        continue
+                    z = gt[ni, nj]
+                    if z < 0:
+                        continue
+                    dz = (d + 2) % 4
+                    kz = 4 * z + FACE[go[ni, nj], dz]
+                    for q in range(min(per_side, cand.shape[1])):
+                        code = cand[kz, q]
+                        if code < 0:
+                            break
+                        y = (code // 2) // 4
+                        x = gt[i, j]
+                        if y == x or fixed[y] or pos[y] < 0:
+                            continue
+                        oy = orientation_for(go[ni, nj], dz, (code // 2) % 4, code % 2)
+                        if not allowed[oy]:
+                            continue
+                        i2 = pos[y] // ncols
+                        j2 = pos[y] % ncols
+                        ox = go[i, j]
+                        oy_old = go[i2, j2]
+                        before = _pair_cost(gt, go, i, j, i2, j2, blocks, bidx, btr)
+                        gt[i, j] = y
+                        go[i, j] = oy
+                        gt[i2, j2] = x
+                        best = np.inf
+                        best_ox = ox
+                        for o in range(8):
+                            if not allowed[o]:
+                                continue
+                            go[i2, j2] = o
+                            c = _pair_cost(gt, go, i, j, i2, j2, blocks, bidx, btr)
+                            if c < best:
+                                best = c
+                                best_ox = o
+                        if best < before - 1e-6 * (1.0 + before):
+                            go[i2, j2] = best_ox
+                            pos[y] = i * ncols + j
+                            pos[x] = i2 * ncols + j2
+                            changed += 1
+                        else:
+                            gt[i, j] = x
+                            go[i, j] = ox
+                            gt[i2, j2] = y
+                            go[i2, j2] = oy_old
+        moves += changed
+        if changed == 0:
+            break
+    return moves

@@ -1,0 +1,236 @@
+"""The ``stitch`` command: a thin layer over the library.
+
+Each command parses its options, makes one library call and turns the
+library's :class:`~stitch.errors.StitchError` into exit code 1 with one line;
+usage errors exit 2; tracebacks only with ``-v``.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import sys
+import warnings
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from . import __version__
+from .errors import StitchError
+
+app = typer.Typer(
+    name="stitch",
+    help="Put raster tiles that lost their coordinates back in place and write a georeferenced mosaic.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    context_settings={"help_option_names": ["-h", "--help"]},
+)
+
+log = logging.getLogger("stitch")
+
+# Options shared by several commands, defined once.
+Verbose = Annotated[int, typer.Option("--verbose", "-v", count=True, help="More detail; -vv for debug logging and tracebacks.")]
+Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="Only errors.")]
+Overwrite = Annotated[bool, typer.Option("--overwrite", help="Replace existing outputs.")]
+Seed = Annotated[int, typer.Option("--seed", help="Seed of every random choice; the same seed gives the same result.")]
+
+
+def _setup_logging(verbose, quiet):
+    level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
+    logging.basicConfig(level=level, format="%(levelname)s: %(message)s", stream=sys.stderr, force=True)
+    logging.getLogger("rasterio").setLevel(max(level, logging.WARNING))
+    logging.getLogger("numba").setLevel(logging.WARNING)
+
+
+@contextmanager
+def _errors(verbose, quiet=False):
+    """Turn library errors into one line and exit code 1."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        warnings.filterwarnings("ignore", module="rasterio")
+        warnings.filterwarnings("ignore", category=DeprecationWarning)
+        try:
+            yield
+        except StitchError as exc:
+            if verbose:
+                raise
+            typer.echo(f"error: {exc}", err=True)
+            raise typer.Exit(code=1) from None
+        except KeyboardInterrupt:
+            typer.echo("interrupted: no partial output was left", err=True)
+            raise typer.Exit(code=130) from None
+        finally:
+            if not quiet:
+                for w in caught:
+                    if issubclass(w.category, UserWarning) and w.filename and "stitch" in w.filename:
+                        typer.echo(f"warning: {w.message}", err=True)
+
+
+def _parse_grid(value):
+    if value is None:
+        return None
+    try:
+        r, c = (int(v) for v in value.lower().split("x"))
+    except ValueError:
+        raise typer.BadParameter(f"expected ROWSxCOLS such as 8x10, not {value!r}") from None
+    if r < 1 or c < 1:
+        raise typer.BadParameter(f"rows and columns must be at least 1, not {value!r}")
+    return r, c
+
+
+def _check_choice(value, choices, name):
+    if value not in choices:
+        raise typer.BadParameter(f"must be one of {', '.join(map(str, choices))}, not {value}", param_hint=name)
+    return value
+
+
+def _version(value):
+    if value:
+        typer.echo(f"stitch {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def main_callback(
+    version: Annotated[Optional[bool], typer.Option("--version", callback=_version, is_eager=True,
+                                                    help="Show the version and exit.")] = None,
+):
+    """Rebuild georeferenced mosaics from tiles by how their edges continue."""
+
+
+def _measure_help():
+    from .seams import available_measures
+
+    return f"Seam measure: {', '.join(available_measures())}."
+
+
+@app.command()
+def solve(
+    tiles_dir: Annotated[Path, typer.Argument(help="Folder of GeoTIFF, PNG or JPEG tiles of one size.")],
+    output: Annotated[Path, typer.Option("--output", "-o", help="Mosaic GeoTIFF to write (.tif).")],
+    grid: Annotated[Optional[str], typer.Option(help="Grid as ROWSxCOLS; inferred when not given.")] = None,
+    rotations: Annotated[int, typer.Option(help="Turns a tile may need: 0 none, 180 half turns, 90 any quarter turn.")] = 0,
+    mirrored: Annotated[bool, typer.Option("--mirrored", help="Tiles may also be mirrored left-right.")] = False,
+    seam: Annotated[str, typer.Option(help=_measure_help())] = "mgc",
+    search: Annotated[str, typer.Option(help="Search strategy: evolution or greedy.")] = "evolution",
+    population: Annotated[int, typer.Option(help="Placements per generation (0: by tile count).")] = 0,
+    generations: Annotated[int, typer.Option(help="Most generations (0: by tile count).")] = 0,
+    time_limit: Annotated[Optional[float], typer.Option(help="Seconds the evolutionary search may take.")] = None,
+    bounds: Annotated[Optional[tuple[float, float, float, float]], typer.Option(
+        help="Mosaic extent WEST SOUTH EAST NORTH in --crs units.")] = None,
+    origin: Annotated[Optional[tuple[float, float]], typer.Option(
+        help="Map X Y of the mosaic's upper-left corner (with --pixel-size).")] = None,
+    pixel_size: Annotated[Optional[float], typer.Option(help="Ground size of a pixel (with --origin).")] = None,
+    pixel_size_y: Annotated[Optional[float], typer.Option(help="Pixel height when it differs from --pixel-size.")] = None,
+    crs: Annotated[Optional[str], typer.Option(help="CRS of --bounds/--origin, e.g. EPSG:32633.")] = None,
+    report: Annotated[Optional[Path], typer.Option(help="Report folder (default: OUT's stem + _report).")] = None,
+    recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
+    seed: Seed = 0,
+    overwrite: Overwrite = False,
+    verbose: Verbose = 0,
+    quiet: Quiet = False,
+):
+    """Put every tile back in its cell and write a georeferenced mosaic, world file and report."""
+    from .georef import GeorefSpec
+    from .mosaic import CAUTION
+    from .pipeline import SolveOptions
+    from .pipeline import solve as run
+    from .search import SearchSettings
+
+    _setup_logging(verbose, quiet)
+    _check_choice(rotations, (0, 90, 180), "--rotations")
+    shape = _parse_grid(grid)
+    with _errors(verbose, quiet):
+        size = None if pixel_size is None else (pixel_size, pixel_size_y or pixel_size)
+        options = SolveOptions(
+            grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive,
+            search=SearchSettings(strategy=search, population=population, generations=generations,
+                                  time_limit=time_limit),
+            georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs),
+        )
+        result = run(tiles_dir, output, options=options, report_dir=report, overwrite=overwrite)
+    if quiet:
+        return
+    p = result.placement
+    s = result.search
+    how = f"{s.strategy}, {s.generations} generations" if s.strategy == "evolution" else s.strategy
+    typer.echo(f"placed {int(p.placed.sum())} tiles in a {p.shape[0]}x{p.shape[1]} grid ({how}, seed {seed})")
+    g = result.georeference
+    typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
+    for role, path in result.outputs.items():
+        typer.echo(f"wrote {path}")
+    flagged = result.flagged
+    if flagged:
+        shown = ", ".join(flagged[:8]) + (f" and {len(flagged) - 8} more" if len(flagged) > 8 else "")
+        typer.echo(f"{len(flagged)} tile(s) need a look (confidence < {options.confidence_threshold}): {shown}")
+    else:
+        typer.echo("no tile flagged for review")
+    typer.echo(f"caution: {CAUTION}")
+
+
+@app.command()
+def cut(
+    raster: Annotated[Path, typer.Argument(help="Raster to cut (any GDAL-readable file).")],
+    output: Annotated[Path, typer.Option("--output", "-o", help="Folder for the tiles.")],
+    tile_size: Annotated[str, typer.Option(help="Tile size PX or WIDTHxHEIGHT.")],
+    shuffle: Annotated[bool, typer.Option("--shuffle", help="Position-free tile names in random order.")] = False,
+    strip_georef: Annotated[bool, typer.Option("--strip-georef", help="Drop georeferencing from the tiles.")] = False,
+    keep_georef: Annotated[int, typer.Option(help="With --strip-georef: tiles (random, upright) that keep it.")] = 0,
+    rotate: Annotated[int, typer.Option(help="Store tiles turned at random: 0, 180 (half turns) or 90 (quarter turns).")] = 0,
+    mirror: Annotated[bool, typer.Option("--mirror", help="Store tiles mirrored at random.")] = False,
+    tile_format: Annotated[str, typer.Option("--format", help="Tile format: tif or png.")] = "tif",
+    key: Annotated[Optional[Path], typer.Option(help="Answer key CSV (default: OUTPUT/answer_key.csv).")] = None,
+    seed: Seed = 0,
+    overwrite: Overwrite = False,
+    verbose: Verbose = 0,
+    quiet: Quiet = False,
+):
+    """Cut a raster into tiles with an answer key, to measure stitch on your own data."""
+    from .puzzles import cut_raster, parse_tile_size
+
+    _setup_logging(verbose, quiet)
+    _check_choice(rotate, (0, 90, 180), "--rotate")
+    with _errors(verbose, quiet):
+        result = cut_raster(raster, output, parse_tile_size(tile_size), shuffle=shuffle, strip_georef=strip_georef,
+                            keep_georef=keep_georef, rotate=rotate, mirror=mirror, fmt=tile_format, key_path=key,
+                            seed=seed, overwrite=overwrite)
+    if not quiet:
+        k = result.key
+        typer.echo(f"wrote {len(k.names)} tiles ({k.shape[0]}x{k.shape[1]}) to {result.folder}")
+        if result.georeferenced and strip_georef:
+            typer.echo(f"kept georeferencing on {', '.join(result.georeferenced)}")
+        typer.echo(f"wrote answer key {result.key_path}")
+
+
+@app.command()
+def score(
+    placement: Annotated[Path, typer.Argument(help="placement.csv written by solve.")],
+    key: Annotated[Path, typer.Argument(help="Answer key in the same format (from cut).")],
+    frame: Annotated[str, typer.Option(help="Forgive a global turn: auto, fixed or free.")] = "auto",
+    as_json: Annotated[bool, typer.Option("--json", help="Print JSON for scripts.")] = False,
+    verbose: Verbose = 0,
+):
+    """Compare a placement with an answer key: direct, neighbour, perfect."""
+    from .layout import read_placement_csv
+    from .puzzles import score_placement
+
+    _setup_logging(verbose, False)
+    _check_choice(frame, ("auto", "fixed", "free"), "--frame")
+    with _errors(verbose):
+        scores = score_placement(read_placement_csv(placement), read_placement_csv(key), frame=frame)
+    if as_json:
+        typer.echo(json.dumps(scores.as_dict()))
+        return
+    typer.echo(f"direct comparison:     {scores.direct:.4f}  ({scores.tiles} tiles)")
+    typer.echo(f"neighbour comparison:  {scores.neighbor:.4f}  ({scores.adjacencies} adjacencies)")
+    typer.echo(f"perfect reconstruction: {'yes' if scores.perfect else 'no'}")
+    if scores.missing:
+        typer.echo(f"missing from the placement: {scores.missing} tile(s)")
+
+
+def main():
+    """Console-script entry point."""
+    app()

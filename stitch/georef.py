@@ -1,0 +1,262 @@
+"""Georeference the mosaic: transforms, CRSs and world files.
+
+Sources, from the most to the least explicit:
+
+* ``--bounds`` or ``--origin``/``--pixel-size`` with ``--crs``
+  (:func:`from_bounds`, :func:`from_origin`);
+* tiles that kept their georeferencing, read by GDAL from GeoTIFF tags or a
+  sidecar world file (:func:`from_anchors`);
+* none: the mosaic stays in pixel space.
+
+Transforms are :class:`affine.Affine` in GDAL's convention: ``(col, row)`` of a
+pixel *corner* to map ``(x, y)``; ``(0, 0)`` is the upper-left corner of the
+upper-left pixel.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import rasterio.transform
+from affine import Affine
+from rasterio.crs import CRS
+from rasterio.errors import CRSError
+
+from .errors import GeoreferenceError, OptionError
+
+__all__ = [
+    "Georeference",
+    "GeorefSpec",
+    "from_anchors",
+    "from_bounds",
+    "from_origin",
+    "parse_crs",
+    "read_world_file",
+    "world_file_path",
+    "world_file_text",
+]
+
+#: Largest disagreement between two anchor tiles, in pixels.
+ANCHOR_TOLERANCE_PX = 0.25
+
+
+@dataclass(frozen=True)
+class Georeference:
+    """Where the mosaic lies on the map.
+
+    Attributes
+    ----------
+    transform : affine.Affine
+        Mosaic pixel corner ``(col, row)`` to map ``(x, y)``.
+    crs : rasterio.crs.CRS or None
+    source : str
+        Human-readable origin, e.g. ``"anchor tiles a.tif, b.tif"``.
+    """
+
+    transform: Affine
+    crs: CRS | None
+    source: str
+
+    @property
+    def is_pixel_space(self):
+        return self.crs is None and self.transform.is_identity
+
+
+#: The mosaic in pixel space (no georeferencing found).
+PIXEL_SPACE = Georeference(Affine.identity(), None, "none (pixel space)")
+
+
+@dataclass(frozen=True)
+class GeorefSpec:
+    """Georeferencing the user gave on the command line or in a script.
+
+    Give ``bounds`` *or* ``origin`` (with ``pixel_size``), and ``crs``.
+
+    Attributes
+    ----------
+    bounds : (west, south, east, north), optional
+    origin : (x, y), optional
+        Map coordinate of the mosaic's upper-left corner.
+    pixel_size : (size_x, size_y), optional
+        Ground size of one pixel; ``size_y`` positive (rows run south).
+    crs : str or CRS, optional
+    """
+
+    bounds: tuple[float, float, float, float] | None = None
+    origin: tuple[float, float] | None = None
+    pixel_size: tuple[float, float] | None = None
+    crs: str | CRS | None = None
+
+    def __post_init__(self):
+        if self.bounds is not None and self.origin is not None:
+            raise OptionError("give either --bounds or --origin, not both")
+        if self.origin is not None and self.pixel_size is None:
+            raise OptionError("--origin needs --pixel-size")
+        if self.pixel_size is not None and self.origin is None:
+            raise OptionError("--pixel-size needs --origin")
+        if self.bounds is not None:
+            w, s, e, n = self.bounds
+            if not all(map(math.isfinite, self.bounds)) or not (e > w and n > s):
+                raise OptionError(f"--bounds must be WEST SOUTH EAST NORTH with east > west and north > south, got {self.bounds}")
+        if self.pixel_size is not None:
+            if not all(math.isfinite(v) and v > 0 for v in self.pixel_size):
+                raise OptionError(f"--pixel-size must be positive, got {self.pixel_size}")
+        if (self.bounds is not None or self.origin is not None) and self.crs is None:
+            raise OptionError("--bounds and --origin need --crs (e.g. --crs EPSG:32633)")
+
+    @property
+    def is_empty(self):
+        return self.bounds is None and self.origin is None
+
+
+def parse_crs(value):
+    """A :class:`rasterio.crs.CRS` from an EPSG code, WKT or PROJ string.
+
+    Examples
+    --------
+    >>> parse_crs("EPSG:4326").to_epsg()
+    4326
+    """
+    if value is None or isinstance(value, CRS):
+        return value
+    try:
+        return CRS.from_user_input(value)
+    except CRSError as exc:
+        raise OptionError(f"--crs {value!r} is not a CRS GDAL knows ({exc}); give e.g. EPSG:32633") from None
+
+
+def from_bounds(bounds, width, height, crs):
+    """Georeference a ``width x height`` pixel mosaic to fill ``bounds``."""
+    w, s, e, n = bounds
+    return Georeference(rasterio.transform.from_bounds(w, s, e, n, width, height), parse_crs(crs),
+                        f"bounds {w:g} {s:g} {e:g} {n:g}")
+
+
+def from_origin(origin, pixel_size, crs):
+    """Georeference from the upper-left corner and the pixel size."""
+    x, y = origin
+    sx, sy = pixel_size
+    return Georeference(rasterio.transform.from_origin(x, y, sx, sy), parse_crs(crs),
+                        f"origin {x:g} {y:g}, pixel size {sx:g} x {sy:g}")
+
+
+def _tile_offset(placement, index, tile_w, tile_h):
+    return Affine.translation(placement.cols[index] * tile_w, placement.rows[index] * tile_h)
+
+
+def from_anchors(placement, tileset):
+    """Georeference the mosaic from placed tiles that kept their georeferencing.
+
+    Each anchor tile at cell ``(row, col)`` implies a mosaic transform
+    ``T_tile * translation(-col * width, -row * height)``. Anchors must be
+    upright and unmirrored in the placement (a turned anchor means the frame
+    is wrong), share a CRS and agree within :data:`ANCHOR_TOLERANCE_PX`.
+
+    Returns
+    -------
+    Georeference or None
+        None when no placed tile carries georeferencing.
+
+    Raises
+    ------
+    GeoreferenceError
+        Anchors disagree (different CRS, pixel size or grid).
+    """
+    anchors = [i for i, g in enumerate(tileset.georefs) if g is not None and placement.rows[i] >= 0]
+    if not anchors:
+        return None
+    implied = []
+    for i in anchors:
+        g = tileset.georefs[i]
+        if placement.rotations[i] or placement.mirrored[i]:
+            raise GeoreferenceError(
+                f"anchor tile {tileset.names[i]!r} keeps its georeferencing but was placed turned "
+                f"{placement.rotations[i] * 90} degrees{' and mirrored' if placement.mirrored[i] else ''}; "
+                "pin it or solve with --rotations 0"
+            )
+        implied.append(g.transform * ~_tile_offset(placement, i, tileset.width, tileset.height))
+    ref, ref_i = implied[0], anchors[0]
+    ref_crs = tileset.georefs[ref_i].crs
+    for t, i in zip(implied[1:], anchors[1:]):
+        crs = tileset.georefs[i].crs
+        if (crs is None) != (ref_crs is None) or (crs is not None and crs != ref_crs):
+            raise GeoreferenceError(
+                f"anchor tiles {tileset.names[ref_i]!r} and {tileset.names[i]!r} are in different CRSs "
+                f"({ref_crs} vs {crs}); reproject one or remove its georeferencing"
+            )
+        # Compare where both put the mosaic's corners, in pixels of the first.
+        corners = [(0, 0), (placement.shape[1] * tileset.width, placement.shape[0] * tileset.height)]
+        worst_px, worst_map = 0.0, 0.0
+        for c in corners:
+            a = np.array(ref * c)
+            b = np.array(t * c)
+            back = np.array(~ref * tuple(b)) - np.array(c)
+            worst_px = max(worst_px, float(np.hypot(*back)))
+            worst_map = max(worst_map, float(np.hypot(*(a - b))))
+        if worst_px > ANCHOR_TOLERANCE_PX:
+            raise GeoreferenceError(
+                f"anchor tiles {tileset.names[ref_i]!r} and {tileset.names[i]!r} disagree by "
+                f"{worst_map:.3f} map units ({worst_px:.2f} px) given their cells in the placement; "
+                "their georeferencing or the placement is wrong; pin them or drop one"
+            )
+    names = ", ".join(tileset.names[i] for i in anchors[:3]) + (" ..." if len(anchors) > 3 else "")
+    return Georeference(ref, ref_crs, f"anchor tile{'s' if len(anchors) > 1 else ''} {names}")
+
+
+def world_file_path(raster_path):
+    """Sidecar world-file path: first and last letter of the extension + ``w``.
+
+    Examples
+    --------
+    >>> world_file_path("mosaic.tif").name
+    'mosaic.tfw'
+    """
+    p = Path(raster_path)
+    ext = p.suffix.lstrip(".")
+    if len(ext) >= 2:
+        return p.with_suffix(f".{ext[0]}{ext[-1]}w")
+    return p.with_suffix(".wld")
+
+
+def world_file_text(transform):
+    """The six lines of a world file for ``transform``.
+
+    Lines are A, D, B, E, C, F: x pixel size, the two rotation terms, y pixel
+    size (negative for north-up), then the map coordinate of the *centre* of
+    the upper-left pixel, which is the corner plus half a pixel.
+    """
+    t = transform
+    c, f = t * (0.5, 0.5)
+    return "".join(f"{v!r}\n" for v in (float(t.a), float(t.d), float(t.b), float(t.e), float(c), float(f)))
+
+
+def read_world_file(path):
+    """Read a world file into an :class:`~affine.Affine` (corner convention).
+
+    Raises
+    ------
+    GeoreferenceError
+        Not six numbers, or a degenerate transform.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="ascii", errors="replace")
+    except OSError as exc:
+        raise GeoreferenceError(f"cannot read world file {str(path)!r}: {exc.strerror}") from None
+    values = []
+    for token in text.split():
+        try:
+            values.append(float(token))
+        except ValueError:
+            raise GeoreferenceError(f"world file {path.name!r} holds {token[:20]!r}, not a number") from None
+    if len(values) != 6 or not all(map(math.isfinite, values)):
+        raise GeoreferenceError(f"world file {path.name!r} must hold six finite numbers, found {len(values)}")
+    a, d, b, e, c, f = values
+    if a * e - b * d == 0:
+        raise GeoreferenceError(f"world file {path.name!r} has a zero pixel size or collinear axes")
+    centre = Affine(a, b, c, d, e, f)
+    return centre * Affine.translation(-0.5, -0.5)
+

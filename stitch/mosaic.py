@@ -1,0 +1,157 @@
+"""Write the mosaic: a tiled, compressed GeoTIFF and its world file.
+
+The mosaic is written tile by tile into windows of the output, each tile read
+from disk and turned as the placement says, so memory holds one tile at a
+time whatever the mosaic's size.
+"""
+
+from __future__ import annotations
+
+import logging
+import warnings
+from pathlib import Path
+
+import numpy as np
+import rasterio
+from rasterio.enums import ColorInterp, Resampling
+from rasterio.errors import NotGeoreferencedWarning as _GdalNotGeoreferenced
+from rasterio.errors import RasterioError
+from rasterio.windows import Window
+
+from . import __version__
+from .errors import OutputError
+from .files import atomic_path, write_text_atomic
+from .georef import world_file_path, world_file_text
+from .tiles import orient
+
+__all__ = ["CAUTION", "choose_nodata", "mosaic_profile", "write_mosaic"]
+
+log = logging.getLogger(__name__)
+
+#: Shown with every result and stored in the GeoTIFF's metadata.
+CAUTION = (
+    "A reconstructed mosaic is not survey-grade: check flagged tiles and verify against "
+    "control before legal, boundary, engineering or navigation use; local regulations and "
+    "licensed survey practice prevail."
+)
+
+
+def choose_nodata(dtype, tile_nodata, has_holes):
+    """Nodata for the mosaic: the tiles' own, else one only holes need.
+
+    Holes get the lowest value of an integer type (0 for unsigned, which is
+    what most viewers show as empty) and NaN for floats.
+    """
+    if tile_nodata is not None:
+        return tile_nodata
+    if not has_holes:
+        return None
+    dt = np.dtype(dtype)
+    if dt.kind == "f":
+        return float("nan")
+    return int(np.iinfo(dt).min)
+
+
+def mosaic_profile(tileset, placement, georef, nodata):
+    """Creation options of the output GeoTIFF."""
+    rows, cols = placement.shape
+    dt = np.dtype(tileset.dtype)
+    profile = {
+        "driver": "GTiff",
+        "width": cols * tileset.width,
+        "height": rows * tileset.height,
+        "count": tileset.count,
+        "dtype": tileset.dtype,
+        "crs": georef.crs,
+        "transform": georef.transform,
+        "nodata": nodata,
+        "tiled": True,
+        "blockxsize": 256,
+        "blockysize": 256,
+        "compress": "deflate",
+        # Horizontal differencing for integers, floating-point prediction for floats.
+        "predictor": 3 if dt.kind == "f" else 2,
+        "bigtiff": "if_safer",
+        "interleave": "pixel" if tileset.count <= 4 else "band",
+    }
+    if tileset.count == 3 and dt == np.uint8:
+        profile["photometric"] = "rgb"
+    return profile
+
+
+def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews=True, progress=None):
+    """Write the mosaic GeoTIFF and its world file.
+
+    Parameters
+    ----------
+    tileset : stitch.tiles.TileSet
+    placement : stitch.layout.Placement
+    georef : stitch.georef.Georeference
+    path : path-like
+        Output GeoTIFF; the world file goes beside it (``.tfw``).
+    overwrite : bool, optional
+        Replace existing outputs.
+    overviews : bool, optional
+        Add internal overviews (factors 2, 4, ...) down to about 256 px.
+    progress : callable, optional
+        Called with the number of tiles written so far.
+
+    Returns
+    -------
+    dict
+        ``{"mosaic": Path, "world_file": Path}``.
+    """
+    path = Path(path)
+    wld = world_file_path(path)
+    has_holes = bool(placement.shape[0] * placement.shape[1] > placement.placed.sum())
+    nodata = choose_nodata(tileset.dtype, tileset.nodata, has_holes)
+    profile = mosaic_profile(tileset, placement, georef, nodata)
+    with atomic_path(path, overwrite=overwrite) as tmp:
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", _GdalNotGeoreferenced)
+                with rasterio.open(tmp, "w", **profile) as dst:
+                    if has_holes and nodata is not None:
+                        _fill_nodata(dst, nodata)
+                    done = 0
+                    for i in np.flatnonzero(placement.placed):
+                        pixels = orient(tileset.read(i), placement.rotations[i], placement.mirrored[i])
+                        window = Window(placement.cols[i] * tileset.width, placement.rows[i] * tileset.height,
+                                        pixels.shape[2], pixels.shape[1])
+                        dst.write(pixels, window=window)
+                        done += 1
+                        if progress is not None:
+                            progress(done)
+                    if tileset.colorinterp and len(tileset.colorinterp) == tileset.count \
+                            and not (tileset.count == 3 and profile.get("photometric") == "rgb"):
+                        dst.colorinterp = [c if isinstance(c, ColorInterp) else ColorInterp(c)
+                                           for c in tileset.colorinterp]
+                    dst.update_tags(
+                        TIFFTAG_SOFTWARE=f"stitch {__version__}",
+                        TIFFTAG_IMAGEDESCRIPTION="Mosaic rebuilt from unreferenced tiles. " + CAUTION,
+                        STITCH_CAUTION=CAUTION,
+                        STITCH_GEOREFERENCE=georef.source,
+                    )
+                    if overviews:
+                        factors = []
+                        f = 2
+                        while max(dst.width, dst.height) / f >= 256:
+                            factors.append(f)
+                            f *= 2
+                        if factors:
+                            dst.build_overviews(factors, Resampling.average)
+                            dst.update_tags(ns="rio_overview", resampling="average")
+        except RasterioError as exc:
+            raise OutputError(f"cannot write mosaic {str(path)!r}: {exc}") from exc
+    write_text_atomic(wld, world_file_text(georef.transform), overwrite=overwrite)
+    log.info("wrote %s (%d x %d px) and %s", path, profile["width"], profile["height"], wld.name)
+    return {"mosaic": path, "world_file": wld}
+
+
+def _fill_nodata(dst, nodata):
+    """Initialise the whole raster to nodata, one block row at a time."""
+    block = 256
+    for row in range(0, dst.height, block):
+        h = min(block, dst.height - row)
+        arr = np.full((dst.count, h, dst.width), nodata, dtype=dst.dtypes[0])
+        dst.write(arr, window=Window(0, row, dst.width, h))

@@ -1,0 +1,231 @@
+"""The whole job in one call: tiles in, georeferenced mosaic and report out.
+
+``read -> score seams -> search placement -> georeference -> write -> report``;
+each arrow is one module. :func:`place_tiles` runs the pure middle (no files
+written), :func:`solve` the whole path.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+import warnings
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .errors import NotGeoreferencedWarning, OptionError, TileSetError
+from .files import check_outputs
+from .georef import PIXEL_SPACE, GeorefSpec, from_anchors, from_bounds, from_origin, world_file_path
+from .layout import Placement, allowed_orientations, normalize_frame
+from .mosaic import write_mosaic
+from .report import check_report, report_paths, write_report
+from .search import SearchSettings, search_placement, tile_confidence
+from .seams import DEFAULT_MEASURE, score_seams
+from .tiles import read_tileset
+
+__all__ = ["SolveOptions", "SolveResult", "default_report_dir", "place_tiles", "solve"]
+
+log = logging.getLogger(__name__)
+
+
+@dataclass(frozen=True)
+class SolveOptions:
+    """Every setting of a solve run.
+
+    Attributes
+    ----------
+    grid : (rows, cols) or None
+        Grid shape; inferred when None.
+    rotations : {0, 180, 90}
+        Turns a tile may need: none, half turns, or any quarter turn.
+    mirrored : bool
+        Tiles may also be mirrored left-right.
+    measure : str
+        Seam measure name (see :func:`stitch.seams.available_measures`).
+    candidates : int
+        Candidates kept per tile side.
+    search : SearchSettings
+    seed : int
+        Seeds every random choice.
+    recursive : bool
+        Read tiles in sub-folders too.
+    georef : GeorefSpec
+        Georeferencing given by the user (overrides anchor tiles).
+    confidence_threshold : float
+        Tiles below it are flagged for review.
+    """
+
+    grid: tuple[int, int] | None = None
+    rotations: int = 0
+    mirrored: bool = False
+    measure: str = DEFAULT_MEASURE
+    candidates: int = 16
+    search: SearchSettings = field(default_factory=SearchSettings)
+    seed: int = 0
+    recursive: bool = False
+    georef: GeorefSpec = field(default_factory=GeorefSpec)
+    confidence_threshold: float = 0.5
+
+    def __post_init__(self):
+        if self.grid is not None and (len(self.grid) != 2 or min(self.grid) < 1):
+            raise OptionError(f"--grid must be ROWSxCOLS with both at least 1, got {self.grid}")
+        if not 0 <= self.confidence_threshold <= 1:
+            raise OptionError("the confidence threshold must lie in [0, 1]")
+        if self.candidates < 2:
+            raise OptionError("keep at least 2 candidates per side")
+
+    def as_dict(self):
+        d = asdict(self)
+        g = d["georef"]
+        if g.get("crs") is not None:
+            g["crs"] = str(g["crs"])
+        return d
+
+
+@dataclass(frozen=True, eq=False)
+class SolveResult:
+    """What a solve run produced.
+
+    Attributes
+    ----------
+    placement : stitch.layout.Placement
+        With per-tile confidence.
+    georeference : stitch.georef.Georeference
+    tileset : stitch.tiles.TileSet
+    search : stitch.search.SearchResult
+    options : SolveOptions
+    outputs : dict
+        Role -> path of every file written.
+    timings : dict
+        Seconds per stage.
+    warnings : tuple of str
+    """
+
+    placement: Placement
+    georeference: object
+    tileset: object
+    search: object
+    options: SolveOptions
+    outputs: dict = field(default_factory=dict)
+    timings: dict = field(default_factory=dict)
+    warnings: tuple = ()
+
+    @property
+    def flagged(self):
+        """Names of placed tiles below the confidence threshold."""
+        p = self.placement
+        low = p.placed & (np.nan_to_num(p.confidence, nan=0.0) < self.options.confidence_threshold)
+        return [p.names[i] for i in np.flatnonzero(low)]
+
+
+def default_report_dir(output):
+    """``OUT_report/`` beside the mosaic ``OUT.tif``."""
+    output = Path(output)
+    return output.with_name(output.stem + "_report")
+
+
+def place_tiles(tileset, options=None, *, progress=None):
+    """Score seams and search a placement; no files are written.
+
+    Returns
+    -------
+    (Placement, SearchResult, SeamTable)
+    """
+    options = options or SolveOptions()
+    n = len(tileset)
+    if options.grid is not None and options.grid[0] * options.grid[1] < n:
+        r, c = options.grid
+        raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
+    orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
+    table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates)
+    result = search_placement(table, shape=options.grid, orientations=orientations, settings=options.search,
+                              rng=options.seed, progress=progress)
+    raw = Placement.from_grid(tileset.names, result.tiles, result.orientations)
+    turns = {0: (0,), 180: (0, 2), 90: (0, 1, 2, 3)}[options.rotations]
+    anchors = [i for i, g in enumerate(tileset.georefs) if g is not None]
+    placement = normalize_frame(raw, turns=turns, mirror=options.mirrored, fit=options.grid, anchors=anchors)
+    conf = tile_confidence(placement, table, result.agreement)
+    conf[tileset.blank] = 0.0
+    return placement.with_confidence(conf), result, table
+
+
+def _georeference(options, placement, tileset):
+    spec = options.georef
+    anchored = from_anchors(placement, tileset)
+    if spec.bounds is not None:
+        g = from_bounds(spec.bounds, placement.shape[1] * tileset.width, placement.shape[0] * tileset.height, spec.crs)
+    elif spec.origin is not None:
+        g = from_origin(spec.origin, spec.pixel_size, spec.crs)
+    else:
+        return anchored
+    if anchored is not None:
+        log.warning("georeferencing from the command line overrides %s", anchored.source)
+    return g
+
+
+def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, progress=None):
+    """Rebuild a georeferenced mosaic from a folder of tiles.
+
+    Parameters
+    ----------
+    tiles_dir : path-like
+        Folder of GeoTIFF, PNG or JPEG tiles of one size.
+    output : path-like
+        Mosaic GeoTIFF to write; a world file is written beside it.
+    options : SolveOptions, optional
+    report_dir : path-like, optional
+        Report folder; default ``<output stem>_report`` beside the mosaic.
+    overwrite : bool, optional
+        Replace existing outputs.
+    progress : callable, optional
+        Search progress callback ``(generation, best, mean)``.
+
+    Returns
+    -------
+    SolveResult
+
+    Examples
+    --------
+    >>> result = solve("demo_tiles", "mosaic.tif")  # doctest: +SKIP
+    >>> result.flagged  # doctest: +SKIP
+    []
+    """
+    options = options or SolveOptions()
+    output = Path(output)
+    report_dir = Path(report_dir) if report_dir is not None else default_report_dir(output)
+    if output.suffix.lower() not in (".tif", ".tiff"):
+        raise OptionError(f"output {str(output)!r} must end in .tif or .tiff (a GeoTIFF is written)")
+    check_outputs([output, world_file_path(output)], overwrite=overwrite)
+    check_report(report_dir, overwrite=overwrite)
+
+    timings, notes = {}, []
+    t0 = time.perf_counter()
+    tileset = read_tileset(tiles_dir, recursive=options.recursive, exclude=[output])
+    if len(tileset) < 2:
+        raise TileSetError(f"{str(tiles_dir)!r} holds a single tile; there is nothing to put together")
+    timings["read"] = time.perf_counter() - t0
+
+    t0 = time.perf_counter()
+    placement, search, _ = place_tiles(tileset, options, progress=progress)
+    timings["place"] = time.perf_counter() - t0
+
+    georef = _georeference(options, placement, tileset)
+    if georef is None:
+        georef = PIXEL_SPACE
+        msg = ("no georeferencing found: the mosaic is in pixel space; add --bounds or --origin with "
+               "--crs, or keep one tile's GeoTIFF tags or world file")
+        warnings.warn(msg, NotGeoreferencedWarning, stacklevel=2)
+        notes.append(msg)
+    if tileset.blank.any():
+        notes.append(f"{int(tileset.blank.sum())} blank tile(s) placed with no evidence; check them")
+
+    t0 = time.perf_counter()
+    outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite)
+    timings["write"] = time.perf_counter() - t0
+    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes))
+    outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
+    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes))
+    write_report(result, report_dir, overwrite=overwrite)
+    return result

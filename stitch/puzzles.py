@@ -1,0 +1,250 @@
+"""Measure stitch on your own data: cut a raster into tiles, score a placement.
+
+:func:`cut_raster` makes a tile folder with a known answer (optionally
+shuffled, turned and stripped of georeferencing); :func:`score_placement`
+compares a solution with that answer using the measures of Cho, Avidan &
+Freeman (CVPR 2010):
+
+direct comparison
+    share of tiles in their correct cell with the correct orientation;
+neighbour comparison
+    share of true adjacencies kept, with the correct sides facing;
+perfect reconstruction
+    every tile correct.
+
+Both are independent of a global shift, and of a global quarter turn (and
+mirror) when tiles were turned and nothing fixes the frame.
+"""
+
+from __future__ import annotations
+
+import logging
+import warnings
+from collections import Counter
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import rasterio
+from rasterio.errors import NotGeoreferencedWarning as _GdalNotGeoreferenced
+from rasterio.errors import RasterioError
+from rasterio.windows import Window
+
+from .errors import OptionError, RasterReadError
+from .files import atomic_path, check_outputs, write_text_atomic
+from .georef import world_file_path, world_file_text
+from .layout import ROTATION_MODES, Placement, seam_pairs, write_placement_csv
+from .tiles import orient
+
+__all__ = ["CutResult", "Scores", "cut_raster", "parse_tile_size", "score_placement"]
+
+log = logging.getLogger(__name__)
+
+_FORMATS = {"tif": ("GTiff", ".tif"), "png": ("PNG", ".png")}
+
+
+@dataclass(frozen=True)
+class Scores:
+    """Placement accuracy against an answer key (Cho, Avidan & Freeman 2010)."""
+
+    direct: float
+    neighbor: float
+    perfect: bool
+    tiles: int
+    adjacencies: int
+    missing: int
+
+    def as_dict(self):
+        return {"direct": self.direct, "neighbor": self.neighbor, "perfect": self.perfect,
+                "tiles": self.tiles, "adjacencies": self.adjacencies, "missing": self.missing}
+
+
+@dataclass(frozen=True)
+class CutResult:
+    """A cut: the answer key and where the tiles went."""
+
+    key: Placement
+    folder: Path
+    key_path: Path
+    georeferenced: tuple[str, ...]
+
+
+def parse_tile_size(text):
+    """``"64"`` -> (64, 64); ``"64x48"`` -> (64, 48) as (width, height)."""
+    try:
+        parts = [int(p) for p in str(text).lower().split("x")]
+    except ValueError:
+        raise OptionError(f"--tile-size must be PX or WIDTHxHEIGHT in pixels, not {text!r}") from None
+    if len(parts) == 1:
+        parts = parts * 2
+    if len(parts) != 2 or min(parts) < 2:
+        raise OptionError(f"--tile-size must be PX or WIDTHxHEIGHT with sizes of at least 2, not {text!r}")
+    return parts[0], parts[1]
+
+
+def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
+    with atomic_path(path, overwrite=overwrite) as tmp:
+        prof = dict(profile, driver=driver, width=pixels.shape[2], height=pixels.shape[1])
+        if driver == "GTiff" and transform is not None:
+            prof.update(transform=transform, crs=crs)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", _GdalNotGeoreferenced)
+            with rasterio.open(tmp, "w", **prof) as dst:
+                dst.write(pixels)
+        # GDAL's PNG driver keeps metadata in a sidecar; none is wanted here.
+        Path(str(tmp) + ".aux.xml").unlink(missing_ok=True)
+    if driver != "GTiff" and transform is not None:
+        write_text_atomic(world_file_path(path), world_file_text(transform), overwrite=overwrite)
+        if crs is not None:
+            write_text_atomic(path.with_suffix(".prj"), crs.to_wkt() + "\n", overwrite=overwrite)
+
+
+def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False, keep_georef=0,
+               rotate=0, mirror=False, fmt="tif", key_path=None, seed=0, overwrite=False):
+    """Cut a raster into whole tiles and write them with an answer key.
+
+    Parameters
+    ----------
+    raster : path-like
+    out_dir : path-like
+        Folder for the tiles (created if missing).
+    tile_size : (width, height) or int
+    shuffle : bool
+        Give tiles position-free names (``tile_0000.tif`` in random order).
+    strip_georef : bool
+        Drop georeferencing from the tiles...
+    keep_georef : int
+        ...except from this many tiles chosen at random (they stay upright).
+    rotate : {0, 180, 90}
+        Store tiles turned at random by half or quarter turns.
+    mirror : bool
+        Store tiles mirrored at random.
+    fmt : {"tif", "png"}
+    key_path : path-like, optional
+        Answer key CSV; default ``out_dir/answer_key.csv``.
+    seed : int
+    overwrite : bool
+
+    Returns
+    -------
+    CutResult
+    """
+    if isinstance(tile_size, int):
+        tile_size = (tile_size, tile_size)
+    tw, th = tile_size
+    if fmt not in _FORMATS:
+        raise OptionError(f"--format must be one of {', '.join(_FORMATS)}, not {fmt!r}")
+    if rotate not in ROTATION_MODES:
+        raise OptionError(f"--rotate must be one of {sorted(ROTATION_MODES)}, not {rotate!r}")
+    if rotate == 90 and tw != th:
+        raise OptionError("quarter turns need square tiles; use --rotate 180 or a square --tile-size")
+    driver, ext = _FORMATS[fmt]
+    rng = np.random.default_rng(seed)
+    out_dir = Path(out_dir)
+    key_path = Path(key_path) if key_path is not None else out_dir / "answer_key.csv"
+    try:
+        src = rasterio.open(raster)
+    except RasterioError as exc:
+        raise RasterReadError(f"cannot read raster {str(raster)!r}: {exc}") from exc
+    with src:
+        rows, cols = src.height // th, src.width // tw
+        if rows * cols == 0:
+            raise OptionError(f"--tile-size {tw}x{th} is larger than {str(raster)!r} ({src.width}x{src.height})")
+        if src.height % th or src.width % tw:
+            log.info("dropping the last %d rows and %d columns that do not fill a tile", src.height % th, src.width % tw)
+        n = rows * cols
+        georeferenced = not (src.transform.is_identity and src.crs is None)
+        keep = np.ones(n, bool) if not strip_georef else np.zeros(n, bool)
+        if strip_georef and keep_georef:
+            keep[rng.choice(n, size=min(keep_georef, n), replace=False)] = True
+        keep &= georeferenced
+        turns = np.asarray(ROTATION_MODES[rotate])
+        rot = np.where(keep, 0, rng.choice(turns, size=n))
+        mir = np.where(keep, False, rng.random(n) < 0.5) if mirror else np.zeros(n, bool)
+        order = rng.permutation(n) if shuffle else np.arange(n)
+        width = max(4, len(str(n - 1)))
+        names = [f"tile_{order[k]:0{width}d}{ext}" if shuffle else f"r{k // cols:03d}_c{k % cols:03d}{ext}"
+                 for k in range(n)]
+        out_dir.mkdir(parents=True, exist_ok=True)
+        check_outputs([out_dir / nm for nm in names] + [key_path], overwrite=overwrite)
+        profile = {"count": src.count, "dtype": src.dtypes[0], "nodata": src.nodata}
+        for k in range(n):
+            r, c = divmod(k, cols)
+            window = Window(c * tw, r * th, tw, th)
+            upright = src.read(window=window)
+            # The key says: mirror (if set) then turn clockwise by rot to get upright,
+            # so the file holds the inverse: turned back, then mirrored.
+            stored = orient(upright, -rot[k])
+            if mir[k]:
+                stored = stored[..., ::-1]
+            transform = src.window_transform(window) if keep[k] else None
+            _write_tile(out_dir / names[k], np.ascontiguousarray(stored), profile, transform,
+                        src.crs if keep[k] else None, driver, overwrite=overwrite)
+    key = Placement(tuple(names), (rows, cols), np.arange(n) // cols, np.arange(n) % cols, rot, mir, np.ones(n))
+    write_placement_csv(key, key_path, overwrite=overwrite)
+    return CutResult(key, out_dir, key_path, tuple(nm for nm, k in zip(names, keep) if k))
+
+
+def score_placement(solution, key, *, frame="auto"):
+    """Direct, neighbour and perfect scores of ``solution`` against ``key``.
+
+    Parameters
+    ----------
+    solution, key : stitch.layout.Placement
+        Matched by tile name; tiles of the key missing from the solution count
+        as wrong.
+    frame : {"auto", "fixed", "free"}
+        Whether a global quarter turn (and mirror) of the whole solution is
+        forgiven: "free" always, "fixed" never, "auto" when either placement
+        has turned (or mirrored) tiles.
+
+    Returns
+    -------
+    Scores
+
+    Examples
+    --------
+    >>> key = Placement(("a", "b"), (1, 2), [0, 0], [0, 1], [0, 0], [False, False])
+    >>> shifted = Placement(("a", "b"), (1, 3), [0, 0], [1, 2], [0, 0], [False, False])
+    >>> score_placement(shifted, key).direct
+    1.0
+    """
+    if frame not in ("auto", "fixed", "free"):
+        raise OptionError(f"frame must be auto, fixed or free, not {frame!r}")
+    index = {name: i for i, name in enumerate(solution.names)}
+    kidx = np.flatnonzero(key.placed)
+    n_key = len(kidx)
+    if n_key == 0:
+        raise OptionError("the answer key places no tile")
+    missing = sum(1 for i in kidx if key.names[i] not in index or not solution.placed[index[key.names[i]]])
+    free_turn = frame == "free" or (frame == "auto" and (key.rotations.any() or solution.rotations.any()))
+    free_mirror = frame == "free" or (frame == "auto" and (key.mirrored.any() or solution.mirrored.any()))
+
+    # Bring the solution into the key's tile order.
+    sel = np.array([index.get(key.names[i], -1) for i in kidx])
+    has = sel >= 0
+    best = 0
+    for m in ((False, True) if free_mirror else (False,)):
+        for k in ((0, 1, 2, 3) if free_turn else (0,)):
+            sol = solution.turned(k, mirror=m)
+            s = np.where(has, sel, 0)
+            ok = has & sol.placed[s]
+            ok &= (sol.rotations[s] == key.rotations[kidx]) & (sol.mirrored[s] == key.mirrored[kidx])
+            deltas = Counter(zip((key.rows[kidx] - sol.rows[s])[ok].tolist(), (key.cols[kidx] - sol.cols[s])[ok].tolist()))
+            if deltas:
+                best = max(best, deltas.most_common(1)[0][1])
+    direct = best / n_key
+
+    # Neighbour comparison on seams named by tile names and sides.
+    def named(p):
+        out = set()
+        for a, b, f in seam_pairs(p):
+            ea, eb = (p.names[a // 4], a % 4), (p.names[b // 4], b % 4)
+            out.add((min(ea, eb), max(ea, eb), int(f)))
+        return out
+
+    true_seams = named(key)
+    found = named(solution)
+    neighbor = len(true_seams & found) / len(true_seams) if true_seams else float(direct == 1.0)
+    return Scores(direct=direct, neighbor=neighbor, perfect=bool(best == n_key), tiles=n_key,
+                  adjacencies=len(true_seams), missing=missing)

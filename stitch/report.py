@@ -1,0 +1,117 @@
+"""Review outputs: what was placed where, how sure, and how the run went.
+
+The report folder holds ``placement.csv`` (the documented contract, see
+:mod:`stitch.layout`) and ``summary.json`` (inputs, settings, seed, library
+versions, timings, georeferencing and warnings).
+"""
+
+from __future__ import annotations
+
+import json
+import platform
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+
+import numpy as np
+
+from .errors import OutputError
+from .files import check_outputs, write_text_atomic
+from .layout import write_placement_csv
+from .mosaic import CAUTION
+
+__all__ = ["REPORT_FILES", "check_report", "library_versions", "report_paths", "summary_dict", "write_report"]
+
+#: Files the report folder holds, by role.
+REPORT_FILES = {"placement": "placement.csv", "summary": "summary.json"}
+
+
+def report_paths(folder):
+    """Paths of every report file in ``folder``."""
+    folder = Path(folder)
+    return {role: folder / name for role, name in REPORT_FILES.items()}
+
+
+def library_versions():
+    """Versions of the libraries a result depends on."""
+    out = {"python": platform.python_version()}
+    for name in ("stitch", "numpy", "rasterio", "scikit-image", "shapely", "numba", "typer"):
+        try:
+            out[name] = version(name)
+        except PackageNotFoundError:
+            out[name] = None
+    import rasterio
+
+    out["gdal"] = rasterio.__gdal_version__
+    return out
+
+
+def _jsonable(value):
+    if isinstance(value, dict):
+        return {str(k) if not isinstance(k, tuple) else "x".join(map(str, k)): _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, Path):
+        return str(value)
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    return value
+
+
+def summary_dict(result):
+    """Everything a reviewer needs to know about a run, as plain data."""
+    p = result.placement
+    low = np.flatnonzero(p.placed & (np.nan_to_num(p.confidence, nan=0.0) < result.options.confidence_threshold))
+    g = result.georeference
+    return _jsonable({
+        "caution": CAUTION,
+        "inputs": {"tiles_dir": str(result.tileset.folder), "tiles": len(result.tileset),
+                   "tile_size": [result.tileset.width, result.tileset.height],
+                   "bands": result.tileset.count, "dtype": result.tileset.dtype,
+                   "nodata": result.tileset.nodata,
+                   "blank_tiles": [result.tileset.names[i] for i in np.flatnonzero(result.tileset.blank)]},
+        "options": result.options.as_dict(),
+        "grid": list(p.shape),
+        "grid_source": "given" if result.options.grid else "inferred",
+        "shape_scores": result.search.shape_scores,
+        "search": {"strategy": result.search.strategy, "generations": result.search.generations,
+                   "cost": result.search.cost, "best_cost": list(result.search.best_history),
+                   "mean_cost": list(result.search.mean_history)},
+        "georeference": {"source": g.source, "crs": g.crs.to_string() if g.crs else None,
+                         "transform": list(g.transform)[:6]},
+        "flagged_tiles": [p.names[i] for i in low],
+        "outputs": result.outputs,
+        "timings_s": {k: round(v, 4) for k, v in result.timings.items()},
+        "warnings": list(result.warnings),
+        "versions": library_versions(),
+    })
+
+
+def check_report(folder, *, overwrite=False):
+    """Refuse early if the report cannot be written (see :func:`stitch.files.check_outputs`)."""
+    folder = Path(folder)
+    if folder.is_dir():
+        check_outputs(report_paths(folder).values(), overwrite=overwrite)
+    elif folder.exists():
+        raise OutputError(f"report path {str(folder)!r} is a file; give a folder with --report")
+    else:
+        check_outputs([folder], overwrite=overwrite)
+
+
+def write_report(result, folder, *, overwrite=False):
+    """Write the report files into ``folder`` (created if missing).
+
+    Returns
+    -------
+    dict
+        Role -> written path.
+    """
+    folder = Path(folder)
+    paths = report_paths(folder)
+    check_report(folder, overwrite=overwrite)
+    folder.mkdir(exist_ok=True)
+    write_placement_csv(result.placement, paths["placement"], overwrite=overwrite)
+    write_text_atomic(paths["summary"], json.dumps(summary_dict(result), indent=2) + "\n", overwrite=overwrite)
+    return paths
+

@@ -1,0 +1,407 @@
+"""Search for the placement with the lowest total seam cost.
+
+Two strategies are built in:
+
+``greedy``
+    Greedy best-buddy placement (Paikin & Tal, CVPR 2015) from the most
+    distinctive tile.
+``evolution``
+    A genetic algorithm over whole placements whose crossover keeps the
+    segments both parents agree on (Sholomon, David & Netanyahu, CVPR 2013),
+    with its first population grown greedily from different seed tiles.
+
+Both return a :class:`SearchResult`. The grid shape may be given or inferred:
+every factorisation ``rows x cols`` of the tile count is tried greedily and the
+one with the lowest mean normalised seam cost wins.
+
+The compiled loops live in :mod:`stitch._kernels`; this module only drives
+them, with every random choice drawn from one :class:`numpy.random.Generator`.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import _kernels as K
+from .errors import OptionError
+
+__all__ = [
+    "SEARCHES",
+    "SearchResult",
+    "SearchSettings",
+    "candidate_shapes",
+    "search_placement",
+    "tile_confidence",
+]
+
+log = logging.getLogger(__name__)
+
+#: Built-in search strategies.
+SEARCHES = ("evolution", "greedy")
+
+
+@dataclass(frozen=True)
+class SearchSettings:
+    """Tuning of the placement search; every field has a working default.
+
+    Attributes
+    ----------
+    strategy : {"evolution", "greedy"}
+    population : int
+        Placements per generation; 0 picks by tile count.
+    generations : int
+        Upper bound on generations; 0 picks by tile count.
+    patience : int
+        Stop after this many generations without a better best placement.
+    time_limit : float or None
+        Seconds for the evolutionary stage; None for no limit.
+    elite : int
+        Best placements copied unchanged into the next generation.
+    mutation : float
+        Chance that a crossover's free choice takes a random tile.
+    greedy_share : float
+        Share of the first population grown greedily (rest random).
+    candidates_free : int
+        Free candidates the greedy step scores per neighbour side.
+    polish : int
+        Children per generation polished by swap-and-turn local search.
+    polish_passes : int
+        Passes of that local search.
+    """
+
+    strategy: str = "evolution"
+    population: int = 0
+    generations: int = 0
+    patience: int = 12
+    time_limit: float | None = None
+    elite: int = 4
+    mutation: float = 0.005
+    greedy_share: float = 0.5
+    candidates_free: int = 3
+    polish: int = 6
+    polish_passes: int = 3
+
+    def __post_init__(self):
+        if self.strategy not in SEARCHES:
+            raise OptionError(f"search must be one of {', '.join(SEARCHES)}, not {self.strategy!r}")
+        if self.population < 0 or self.generations < 0 or self.patience < 1:
+            raise OptionError("population and generations must be >= 0 and patience >= 1")
+        if self.time_limit is not None and self.time_limit <= 0:
+            raise OptionError(f"time limit must be positive seconds, not {self.time_limit}")
+
+
+@dataclass(frozen=True, eq=False)
+class SearchResult:
+    """Outcome of a placement search.
+
+    Attributes
+    ----------
+    tiles, orientations : ndarray, shape (rows, cols)
+        Tile index per cell (-1 for a hole) and orientation codes.
+    cost : float
+        Total seam cost of the best placement.
+    best_history, mean_history : tuple of float
+        Best and mean population cost per generation (empty for greedy).
+    generations : int
+    strategy : str
+    shape_scores : dict
+        Per tried shape, the best-buddy seams and mean normalised seam cost
+        of its greedy placement.
+    agreement : ndarray, shape (4 * n_tiles,)
+        Share of the final elite holding the best placement's seam on each
+        side slot (1 for greedy); feeds tile confidence.
+    """
+
+    tiles: np.ndarray
+    orientations: np.ndarray
+    cost: float
+    best_history: tuple = ()
+    mean_history: tuple = ()
+    generations: int = 0
+    strategy: str = "greedy"
+    shape_scores: dict = field(default_factory=dict)
+    agreement: np.ndarray | None = None
+
+    @property
+    def shape(self):
+        return self.tiles.shape
+
+
+def candidate_shapes(n_tiles, *, transposes=True):
+    """Grid shapes ``(rows, cols)`` that hold exactly ``n_tiles`` tiles.
+
+    Thin strips are left out when a fuller shape exists.
+
+    Examples
+    --------
+    >>> candidate_shapes(6)
+    [(2, 3), (3, 2)]
+    """
+    shapes = []
+    for r in range(1, n_tiles + 1):
+        if n_tiles % r == 0:
+            shapes.append((r, n_tiles // r))
+    full = [s for s in shapes if min(s) >= 2]
+    shapes = full or shapes
+    if not transposes:
+        shapes = [s for s in shapes if s[0] <= s[1]]
+    return shapes
+
+
+class _Problem:
+    """Arrays the kernels need, gathered once."""
+
+    def __init__(self, table, orientations):
+        self.n = table.n_tiles
+        self.blocks = np.ascontiguousarray(table.blocks, dtype=np.float32)
+        self.bidx = np.ascontiguousarray(table.block_index, dtype=np.int64)
+        self.btr = np.ascontiguousarray(table.transposed, dtype=np.bool_)
+        self.cand = np.ascontiguousarray(table.candidates, dtype=np.int64)
+        self.second = np.ascontiguousarray(table.second, dtype=np.float64)
+        self.bb = np.ascontiguousarray(table.best_buddies, dtype=np.int64)
+        self.allowed = np.zeros(8, np.bool_)
+        self.allowed[list(orientations)] = True
+        self.orientations = tuple(orientations)
+        self.table = table
+        self.fixed = np.zeros(self.n, np.bool_)
+
+    def greedy(self, seed, shape, kfree):
+        return K.greedy(seed, 0, shape[0], shape[1], self.n, self.blocks, self.bidx, self.btr,
+                        self.cand, self.second, self.bb, self.allowed, kfree)
+
+    def polish(self, grid, passes):
+        return K.improve(grid[0], grid[1], self.n, self.blocks, self.bidx, self.btr, self.cand,
+                         self.allowed, self.fixed, passes, 4)
+
+    def buddy_seams(self, grid):
+        """Number of best-buddy pairs a grid realises."""
+        p = K.partners(grid[0], grid[1], self.n)
+        return int(np.sum((p >= 0) & (p == self.bb)))
+
+    def fitness(self, grid):
+        return float(K.fitness(grid[0], grid[1], self.blocks, self.bidx, self.btr))
+
+    def normalized_cost(self, grid):
+        """Mean of cost / second-best over the seams (comparable across shapes)."""
+        gt, go = grid
+        total, count = 0.0, 0
+        for d, sl_a, sl_b in ((1, np.s_[:, :-1], np.s_[:, 1:]), (2, np.s_[:-1, :], np.s_[1:, :])):
+            a_t, a_o, b_t, b_o = gt[sl_a], go[sl_a], gt[sl_b], go[sl_b]
+            ok = (a_t >= 0) & (b_t >= 0)
+            if not ok.any():
+                continue
+            sa = 4 * a_t[ok] + K.FACE[a_o[ok], d]
+            sb = 4 * b_t[ok] + K.FACE[b_o[ok], (d + 2) % 4]
+            flip = (a_o[ok] >= 4) != (b_o[ok] >= 4)
+            c = self.table.cost(sa, sb, flip.astype(int))
+            sec = np.maximum(np.minimum(self.second[sa], self.second[sb]), 1e-12)
+            total += float(np.sum(np.minimum(c / sec, 10.0)))
+            count += int(ok.sum())
+        return total / count if count else 0.0
+
+
+def _seed_ranking(problem):
+    """Tiles ordered by how distinctive they are: best-buddy sides, then margin."""
+    n = problem.n
+    has_bb = (problem.bb >= 0).reshape(n, 4).sum(axis=1)
+    best = problem.table.candidate_costs[:, 0].reshape(n, 4)
+    sec = problem.table.second.reshape(n, 4)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        margin = np.where(sec > 0, 1 - best / sec, 0)
+    margin = np.nan_to_num(margin, nan=0.0, posinf=0.0, neginf=0.0).mean(axis=1)
+    return np.lexsort((-margin, -has_bb))
+
+
+def _random_grid(rng, shape, n, orientations):
+    cells = shape[0] * shape[1]
+    gt = np.full(cells, -1, np.int64)
+    pos = rng.permutation(cells)[:n]
+    gt[pos] = rng.permutation(n)
+    go = np.where(gt >= 0, rng.choice(np.asarray(orientations), size=cells), 0).astype(np.int64)
+    return gt.reshape(shape), go.reshape(shape)
+
+
+def _default_sizes(n):
+    population = int(min(200, max(30, 8 * math.sqrt(n))))
+    generations = int(min(300, 40 + n // 4))
+    return population, generations
+
+
+def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng=None, progress=None):
+    """Find a low-cost placement of every tile of a seam table.
+
+    Parameters
+    ----------
+    table : stitch.seams.SeamTable
+    shape : (int, int), optional
+        Grid rows and columns; inferred when None.
+    orientations : tuple of int, optional
+        Allowed orientation codes.
+    settings : SearchSettings, optional
+    rng : {numpy.random.Generator, int}, optional
+        Source of every random choice.
+    progress : callable, optional
+        Called as ``progress(generation, best_cost, mean_cost)``.
+
+    Returns
+    -------
+    SearchResult
+    """
+    settings = settings or SearchSettings()
+    rng = np.random.default_rng(rng)
+    problem = _Problem(table, orientations)
+    n = problem.n
+    if shape is not None:
+        rows, cols = shape
+        if rows * cols < n:
+            raise OptionError(f"grid {rows}x{cols} holds {rows * cols} tiles but there are {n}; give a larger --grid")
+        shapes = [tuple(shape)]
+        if len(set(orientations) & {1, 3, 5, 7}) and rows != cols:
+            shapes.append((cols, rows))  # the seed may sit turned; turned back later
+    else:
+        shapes = candidate_shapes(n, transposes=True)
+    ranking = _seed_ranking(problem)
+    seed0 = int(ranking[0])
+
+    # A wrong shape forces seams the tiles do not want: the right one keeps
+    # the most best-buddy pairs, and, among equals, the cheapest seams.
+    shape_scores = {}
+    best_shape, best_greedy, best_key = None, None, None
+    for s in shapes:
+        grid = problem.greedy(seed0, s, settings.candidates_free)
+        problem.polish(grid, settings.polish_passes)
+        key = (-problem.buddy_seams(grid), problem.normalized_cost(grid))
+        shape_scores[s] = {"buddy_pairs": -key[0], "mean_normalized_cost": key[1]}
+        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], -key[0], key[1])
+        if best_key is None or key < best_key:
+            best_shape, best_greedy, best_key = s, grid, key
+    greedy_cost = problem.fitness(best_greedy)
+
+    if settings.strategy == "greedy" or n < 3:
+        return SearchResult(
+            tiles=best_greedy[0], orientations=best_greedy[1], cost=greedy_cost, strategy="greedy",
+            shape_scores=shape_scores, agreement=np.ones(4 * n),
+        )
+    return _evolve(problem, best_shape, best_greedy, ranking, settings, rng, progress, shape_scores)
+
+
+def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_scores):
+    n = problem.n
+    pop_default, gen_default = _default_sizes(n)
+    pop_size = settings.population or pop_default
+    max_gen = settings.generations or gen_default
+    elite = max(1, min(settings.elite, pop_size - 1))
+    deadline = None if settings.time_limit is None else time.perf_counter() + settings.time_limit
+
+    population = [first]
+    n_greedy = max(1, int(round(pop_size * settings.greedy_share)))
+    seeds = list(ranking[1: min(n, 4 * n_greedy)])
+    rng.shuffle(seeds)
+    for seed in seeds[: n_greedy - 1]:
+        population.append(problem.greedy(int(seed), shape, settings.candidates_free))
+    while len(population) < pop_size:
+        population.append(_random_grid(rng, shape, n, problem.orientations))
+    for g in population:
+        problem.polish(g, settings.polish_passes)
+    costs = np.array([problem.fitness(g) for g in population])
+    parts = [K.partners(g[0], g[1], n) for g in population]
+
+    best_hist, mean_hist = [], []
+    stale, generation = 0, 0
+    best_cost = costs.min()
+    while generation < max_gen and stale < settings.patience:
+        if deadline is not None and time.perf_counter() > deadline:
+            log.info("time limit reached after %d generations", generation)
+            break
+        order = np.argsort(costs, kind="stable")
+        new_pop = [population[i] for i in order[:elite]]
+        new_parts = [parts[i] for i in order[:elite]]
+        new_costs = [costs[i] for i in order[:elite]]
+        # Tournament selection of size 3.
+        picks = rng.integers(0, pop_size, size=(pop_size - elite, 2, 3))
+        winners = np.take_along_axis(picks, np.argmin(costs[picks], axis=2)[..., None], axis=2)[..., 0]
+        seeds = rng.integers(0, n, size=pop_size - elite)
+        rseeds = rng.integers(0, 2**31 - 1, size=pop_size - elite)
+        for (ia, ib), seed, rs in zip(winners, seeds, rseeds):
+            pa_t, pa_o = population[ia]
+            at = np.flatnonzero(pa_t == seed)
+            seed_o = int(pa_o.flat[at[0]]) if at.size else problem.orientations[0]
+            child = K.crossover(parts[ia], parts[ib], int(seed), seed_o, shape[0], shape[1], n,
+                                problem.blocks, problem.bidx, problem.btr, problem.cand, problem.bb,
+                                problem.allowed, settings.mutation, int(rs))
+            new_pop.append(child)
+            new_costs.append(problem.fitness(child))
+        # Memetic step: polish the most promising children with local search
+        # (polishing all of them costs more than it gains).
+        children = np.argsort(new_costs[elite:], kind="stable")[: settings.polish] + elite
+        for c in children:
+            problem.polish(new_pop[c], settings.polish_passes)
+            new_costs[c] = problem.fitness(new_pop[c])
+        new_parts += [K.partners(g[0], g[1], n) for g in new_pop[elite:]]
+        population, parts, costs = new_pop, new_parts, np.array(new_costs)
+        generation += 1
+        gen_best = float(costs.min())
+        best_hist.append(gen_best)
+        mean_hist.append(float(costs.mean()))
+        if gen_best < best_cost - 1e-9 * max(1.0, abs(best_cost)):
+            best_cost = gen_best
+            stale = 0
+        else:
+            stale += 1
+        if progress is not None:
+            progress(generation, gen_best, mean_hist[-1])
+
+    order = np.argsort(costs, kind="stable")
+    best = population[order[0]]
+    best_parts = parts[order[0]]
+    top = [parts[i] for i in order[: max(elite, pop_size // 10)]]
+    agreement = np.mean([p == best_parts for p in top], axis=0)
+    log.info("evolution: %d generations, best cost %.1f", generation, costs[order[0]])
+    return SearchResult(
+        tiles=best[0], orientations=best[1], cost=float(costs[order[0]]),
+        best_history=tuple(best_hist), mean_history=tuple(mean_hist), generations=generation,
+        strategy="evolution", shape_scores=shape_scores, agreement=agreement,
+    )
+
+
+def tile_confidence(placement, table, agreement=None):
+    """Per-tile confidence in [0, 1] from the seams each tile makes.
+
+    A seam scores the mean of three signs of a right join: the two sides are
+    best buddies (Pomeranz, Shemesh & Ben-Shahar, CVPR 2011); its normalised
+    confidence ``1 - cost / second best``; and the share of the final elite
+    holding it (``agreement``). A tile scores the mean over its seams; a tile
+    with no placed neighbour scores 0.
+
+    Parameters
+    ----------
+    placement : stitch.layout.Placement
+    table : stitch.seams.SeamTable
+    agreement : ndarray, shape (4 * n_tiles,), optional
+
+    Returns
+    -------
+    ndarray of float, shape (n_tiles,)
+    """
+    from .layout import seam_pairs
+
+    n = len(placement.names)
+    pairs = seam_pairs(placement)
+    conf = np.zeros(n)
+    if len(pairs) == 0:
+        return conf
+    sa, sb, flip = pairs.T
+    is_bb = (table.best_buddies[sa] == 2 * sb + flip).astype(float)
+    compat = table.confidence(sa, sb, flip)
+    agree = np.ones(len(pairs)) if agreement is None else (agreement[sa] + agreement[sb]) / 2
+    seam_conf = (is_bb + compat + agree) / 3
+    tiles = np.concatenate([sa // 4, sb // 4])
+    total = np.bincount(tiles, weights=np.concatenate([seam_conf, seam_conf]), minlength=n)
+    count = np.bincount(tiles, minlength=n)
+    np.divide(total, count, out=conf, where=count > 0)
+    return conf

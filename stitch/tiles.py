@@ -1,0 +1,397 @@
+"""Find, read and validate tiles; cut their edge strips; keep surviving georeferencing.
+
+This is the first stage of the pipeline: everything later works on a
+:class:`TileSet`, which holds only the tiles' headers and the two-pixel strips
+along their sides. Full tiles are read again from disk, one at a time, when the
+mosaic is written, so memory stays proportional to the tiles' perimeters.
+
+Side and strip conventions
+--------------------------
+Sides are numbered clockwise from the top: 0 top, 1 right, 2 bottom, 3 left.
+The strip of side ``s`` is taken from the tile turned clockwise by
+``(1 - s) % 4`` quarter turns, which brings side ``s`` to the right; the strip
+is then the last two columns, shaped ``(length, 2, bands)``: column 0 is the
+pixel one step inside the tile, column 1 the boundary pixel, and rows run top
+to bottom of the turned tile, which is clockwise around the original tile.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import rasterio
+from affine import Affine
+from rasterio.crs import CRS
+from rasterio.errors import NotGeoreferencedWarning as _GdalNotGeoreferenced
+from rasterio.errors import RasterioError
+
+from .errors import RasterReadError, TileSetError
+
+__all__ = [
+    "RASTER_SUFFIXES",
+    "EdgeStrips",
+    "TileGeoref",
+    "TileSet",
+    "find_tiles",
+    "orient",
+    "read_tile",
+    "read_tileset",
+    "side_strips",
+]
+
+log = logging.getLogger(__name__)
+
+#: File name endings read as tiles (case-insensitive).
+RASTER_SUFFIXES = (".tif", ".tiff", ".png", ".jpg", ".jpeg")
+
+#: Sidecar world-file endings GDAL looks for beside each raster kind
+#: (GDAL's world-file convention: first and last letter of the extension + "w").
+_WORLD_SUFFIXES = {
+    ".tif": (".tfw", ".tifw", ".wld"),
+    ".tiff": (".tfw", ".tiffw", ".wld"),
+    ".png": (".pgw", ".pngw", ".wld"),
+    ".jpg": (".jgw", ".jpgw", ".wld"),
+    ".jpeg": (".jgw", ".jpegw", ".wld"),
+}
+
+#: Largest tile GDAL may be asked to read, in pixels; larger headers are refused
+#: before any pixel is read (a corrupt header can claim terabytes).
+MAX_TILE_PIXELS = 64_000_000
+
+
+def orient(pixels, rotation, mirrored=False):
+    """Turn a ``(bands, rows, cols)`` array the way a placement says.
+
+    Parameters
+    ----------
+    pixels : ndarray
+        Tile pixels, bands first, as rasterio reads them.
+    rotation : int
+        Clockwise quarter turns (0-3) applied after the optional mirror.
+    mirrored : bool, optional
+        Mirror left-right first.
+
+    Returns
+    -------
+    ndarray
+        A view of ``pixels`` as it sits in the mosaic.
+
+    Examples
+    --------
+    >>> a = np.arange(4).reshape(1, 2, 2)
+    >>> orient(a, 1)[0]
+    array([[2, 0],
+           [3, 1]])
+    """
+    if mirrored:
+        pixels = pixels[..., ::-1]
+    return np.rot90(pixels, -int(rotation) % 4, axes=(-2, -1))
+
+
+def side_strips(pixels):
+    """The four two-pixel edge strips of one tile.
+
+    Parameters
+    ----------
+    pixels : ndarray, shape (bands, rows, cols)
+
+    Returns
+    -------
+    list of ndarray
+        For sides 0..3 (top, right, bottom, left) an array shaped
+        ``(length, 2, bands)``; column 1 is the boundary pixel, column 0 the
+        pixel one step inside (see the module notes for the row order).
+    """
+    strips = []
+    for side in range(4):
+        turned = orient(pixels, (1 - side) % 4)
+        strips.append(np.moveaxis(turned[:, :, -2:], 0, -1))
+    return strips
+
+
+@dataclass(frozen=True)
+class TileGeoref:
+    """Georeferencing that survived on one tile.
+
+    Attributes
+    ----------
+    transform : affine.Affine
+        Pixel (col, row) of the tile to map coordinates, GDAL's convention.
+    crs : rasterio.crs.CRS or None
+    source : str
+        Where it came from, e.g. ``"GeoTIFF tags"`` or ``"world file a.tfw"``.
+    """
+
+    transform: Affine
+    crs: CRS | None
+    source: str
+
+
+@dataclass(frozen=True)
+class EdgeStrips:
+    """The edge strips of every tile, one array per side.
+
+    ``sides[s]`` has shape ``(n_tiles, length, 2, bands)`` and dtype float32,
+    with the layout of :func:`side_strips`. ``valid[s]`` has shape
+    ``(n_tiles, length, 2)`` and is False where a pixel is nodata or masked.
+    """
+
+    sides: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+    valid: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+
+
+@dataclass(frozen=True)
+class TileSet:
+    """A validated folder of same-shaped tiles, read down to their edges.
+
+    Attributes
+    ----------
+    folder : Path
+    names : tuple of str
+        File names relative to ``folder`` (POSIX separators), sorted.
+    width, height, count : int
+        Pixel size and band count shared by every tile.
+    dtype : str
+        Shared data type.
+    nodata : float or None
+        Nodata value of the first tile that declares one.
+    georefs : tuple of TileGeoref or None
+        Surviving georeferencing per tile.
+    edges : EdgeStrips
+    blank : ndarray of bool
+        True for tiles that are constant or entirely nodata.
+    colorinterp : tuple
+        Band colour interpretation of the first tile, copied to the mosaic.
+    """
+
+    folder: Path
+    names: tuple[str, ...]
+    width: int
+    height: int
+    count: int
+    dtype: str
+    nodata: float | None
+    georefs: tuple[TileGeoref | None, ...]
+    edges: EdgeStrips
+    blank: np.ndarray
+    colorinterp: tuple = ()
+
+    def __len__(self):
+        return len(self.names)
+
+    @property
+    def paths(self):
+        """Absolute paths of the tiles, in ``names`` order."""
+        return tuple(self.folder / n for n in self.names)
+
+    @property
+    def is_square(self):
+        return self.width == self.height
+
+    def read(self, index):
+        """Read tile ``index`` from disk as ``(bands, rows, cols)``."""
+        return read_tile(self.folder / self.names[index])
+
+
+def find_tiles(folder, *, recursive=False, exclude=()):
+    """Raster files in ``folder`` by their ending, sorted by name.
+
+    Parameters
+    ----------
+    folder : path-like
+    recursive : bool, optional
+        Descend into sub-folders.
+    exclude : iterable of path-like, optional
+        Files never taken as tiles (e.g. the run's own outputs).
+
+    Returns
+    -------
+    list of Path
+    """
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise TileSetError(f"tile folder {str(folder)!r} does not exist or is not a folder")
+    excluded = {Path(p).resolve() for p in exclude}
+    pattern = "**/*" if recursive else "*"
+    found = []
+    for path in folder.glob(pattern):
+        if path.name.startswith(".") or not path.is_file():
+            continue
+        if path.suffix.lower() in RASTER_SUFFIXES and path.resolve() not in excluded:
+            found.append(path)
+    return sorted(found, key=lambda p: p.relative_to(folder).as_posix())
+
+
+def _open(path):
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", _GdalNotGeoreferenced)
+            return rasterio.open(path)
+    except RasterioError as exc:
+        raise RasterReadError(
+            f"cannot read tile {str(path)!r}: {exc}; remove or replace the file"
+        ) from exc
+
+
+def read_tile(path):
+    """Read a tile's pixels as ``(bands, rows, cols)``."""
+    with _open(path) as src:
+        try:
+            return src.read()
+        except RasterioError as exc:
+            raise RasterReadError(
+                f"cannot read pixels of tile {str(path)!r} (truncated or corrupt?): {exc}; "
+                "remove or replace the file"
+            ) from exc
+
+
+def _is_usable_transform(t):
+    vals = (t.a, t.b, t.c, t.d, t.e, t.f)
+    if not all(math.isfinite(v) for v in vals):
+        return False
+    det = t.a * t.e - t.b * t.d
+    return det != 0 and all(abs(v) < 1e12 for v in vals)
+
+
+def _read_prj(path):
+    prj = path.with_suffix(".prj")
+    if prj.is_file():
+        try:
+            return CRS.from_wkt(prj.read_text(errors="replace"))
+        except Exception:  # a broken .prj is reported, not fatal
+            log.warning("ignoring unreadable CRS file %s", prj)
+    return None
+
+
+def _tile_georef(path, src):
+    """Georeferencing GDAL found on an open tile, or None."""
+    t = src.transform
+    if t.is_identity and src.crs is None:
+        return None
+    if not _is_usable_transform(t):
+        log.warning("tile %s has a corrupt geotransform %s; treating it as unreferenced", path.name, tuple(t)[:6])
+        return None
+    sidecars = [path.with_suffix(s) for s in _WORLD_SUFFIXES.get(path.suffix.lower(), ())]
+    sidecar = next((p for p in sidecars if p.is_file()), None)
+    crs = src.crs or _read_prj(path)
+    if sidecar is not None and not (path.suffix.lower() in (".tif", ".tiff") and src.tags(ns="")):
+        source = f"world file {sidecar.name}"
+    else:
+        source = "GeoTIFF tags" if path.suffix.lower() in (".tif", ".tiff") else "raster metadata"
+    return TileGeoref(transform=t, crs=crs, source=source)
+
+
+def _describe(shape):
+    w, h, count, dtype = shape
+    return f"{w}x{h} px, {count} band{'s' if count != 1 else ''}, {dtype}"
+
+
+def read_tileset(folder, *, recursive=False, exclude=()):
+    """Read every tile in ``folder`` down to its edge strips.
+
+    Parameters
+    ----------
+    folder : path-like
+        Folder holding GeoTIFF, PNG or JPEG tiles.
+    recursive : bool, optional
+        Also read tiles in sub-folders.
+    exclude : iterable of path-like, optional
+        Files to leave out (the run's own outputs).
+
+    Returns
+    -------
+    TileSet
+
+    Raises
+    ------
+    TileSetError
+        No tiles, or tiles that differ in size, band count or data type.
+    RasterReadError
+        A file with a raster ending that GDAL cannot read.
+    """
+    folder = Path(folder)
+    paths = find_tiles(folder, recursive=recursive, exclude=exclude)
+    if not paths:
+        raise TileSetError(
+            f"no tiles in {str(folder)!r}: expected GeoTIFF, PNG or JPEG files "
+            f"({', '.join(RASTER_SUFFIXES)})"
+        )
+    names = tuple(p.relative_to(folder).as_posix() for p in paths)
+
+    # Headers first, so a mixed folder fails before any pixel is read.
+    shapes, nodatas, georefs, colorinterp = [], [], [], ()
+    for path in paths:
+        with _open(path) as src:
+            if src.width * src.height > MAX_TILE_PIXELS:
+                raise TileSetError(
+                    f"tile {path.name!r} claims {src.width}x{src.height} pixels, more than the "
+                    f"{MAX_TILE_PIXELS:,} a tile may have; is it really a tile?"
+                )
+            shapes.append((src.width, src.height, src.count, src.dtypes[0]))
+            if len(set(src.dtypes)) > 1:
+                raise TileSetError(f"tile {path.name!r} mixes band data types {sorted(set(src.dtypes))}")
+            nodatas.append(src.nodata)
+            georefs.append(_tile_georef(path, src))
+            if not colorinterp:
+                colorinterp = tuple(src.colorinterp)
+    counts = {}
+    for s in shapes:
+        counts[s] = counts.get(s, 0) + 1
+    if len(counts) > 1:
+        common = max(counts, key=counts.get)
+        odd = [(n, s) for n, s in zip(names, shapes) if s != common]
+        listed = "; ".join(f"{n} ({_describe(s)})" for n, s in odd[:5])
+        more = f" and {len(odd) - 5} more" if len(odd) > 5 else ""
+        raise TileSetError(
+            f"{len(odd)} of {len(names)} tiles differ from the others ({_describe(common)}): "
+            f"{listed}{more}; move them out of {str(folder)!r}"
+        )
+    width, height, count, dtype = shapes[0]
+    if width < 2 or height < 2:
+        raise TileSetError(f"tiles in {str(folder)!r} are {width}x{height} px; at least 2x2 is needed")
+    nodata = next((v for v in nodatas if v is not None), None)
+
+    n = len(paths)
+    sides = [np.empty((n, height if s % 2 else width, 2, count), np.float32) for s in range(4)]
+    valid = [np.ones((n, height if s % 2 else width, 2), bool) for s in range(4)]
+    blank = np.zeros(n, bool)
+    for i, path in enumerate(paths):
+        with _open(path) as src:
+            try:
+                masked = src.read(masked=True)
+            except RasterioError as exc:
+                raise RasterReadError(
+                    f"cannot read pixels of tile {path.name!r} (truncated or corrupt?): {exc}; "
+                    "remove or replace the file"
+                ) from exc
+        pixels = np.asarray(masked.data, dtype=np.float32)
+        mask = np.ma.getmaskarray(masked).any(axis=0)
+        if nodata is not None and src.nodata is None:
+            mask |= (pixels == nodata).all(axis=0)
+        mask |= ~np.isfinite(pixels).all(axis=0)
+        good = pixels[:, ~mask]
+        blank[i] = good.size == 0 or bool(np.all(good.max(axis=1) == good.min(axis=1)))
+        for s, (strip, vstrip) in enumerate(zip(side_strips(pixels), side_strips(~mask[None]))):
+            sides[s][i] = strip
+            valid[s][i] = vstrip[..., 0]
+    if blank.any():
+        log.info("%d blank tile(s) (constant or all nodata): %s", blank.sum(),
+                 ", ".join(np.asarray(names)[blank][:5]))
+    return TileSet(
+        folder=folder,
+        names=names,
+        width=width,
+        height=height,
+        count=count,
+        dtype=dtype,
+        nodata=nodata,
+        georefs=tuple(georefs),
+        edges=EdgeStrips(sides=tuple(sides), valid=tuple(valid)),
+        blank=blank,
+        colorinterp=colorinterp,
+    )
