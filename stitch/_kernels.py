@@ -568,3 +568,98 @@ def improve(gt, go, n, blocks, bidx, btr, cand, allowed, fixed, max_passes, per_
         if changed == 0:
             break
     return moves
+
+
+@njit(cache=True)
+def _window_cost(gt, go, r0, c0, h, w, blocks, bidx, btr):
+    """Exact cost of every seam touching the window, each counted once."""
+    nrows, ncols = gt.shape
+    total = 0.0
+    for i in range(r0, r0 + h):
+        for j in range(c0, c0 + w):
+            x = gt[i, j]
+            if x < 0:
+                continue
+            for d in range(4):
+                ni = i + DROW[d]
+                nj = j + DCOL[d]
+                if ni < 0 or nj < 0 or ni >= nrows or nj >= ncols:
+                    continue
+                y = gt[ni, nj]
+                if y < 0:
+                    continue
+                inside = r0 <= ni < r0 + h and c0 <= nj < c0 + w
+                if inside and (d == 0 or d == 3):
+                    continue  # counted from the other cell
+                total += seam_cost(blocks, bidx, btr, x, go[i, j], d, y, go[ni, nj])
+    return total
+
+
+@njit(cache=True)
+def _window_settled(gt, go, r0, c0, h, w, bb):
+    """True when every seam inside the window joins mutual best buddies."""
+    for i in range(r0, r0 + h):
+        for j in range(c0, c0 + w):
+            x = gt[i, j]
+            if x < 0:
+                return False
+            ox = go[i, j]
+            for d in (1, 2):
+                ni = i + DROW[d]
+                nj = j + DCOL[d]
+                if ni >= r0 + h or nj >= c0 + w:
+                    continue
+                y = gt[ni, nj]
+                if y < 0:
+                    return False
+                oy = go[ni, nj]
+                flip = 1 if (ox >= 4) != (oy >= 4) else 0
+                if bb[4 * x + FACE[ox, d]] != 2 * (4 * y + FACE[oy, (d + 2) % 4]) + flip:
+                    return False
+    return True
+
+
+@njit(cache=True)
+def permute_windows(gt, go, h, w, perms, blocks, bidx, btr, fixed, bb):
+    """Try every arrangement of the tiles inside each ``h x w`` window.
+
+    Fixes small scrambled blocks that no single swap improves (each swap on
+    the way costs more). ``perms`` lists the permutations of ``h * w`` cells.
+    Tiles keep their orientation; windows holding fixed tiles, and windows
+    whose inner seams all join best buddies, are skipped. Works in place;
+    returns the number of windows rearranged.
+    """
+    nrows, ncols = gt.shape
+    k = h * w
+    cells_t = np.empty(k, np.int64)
+    cells_o = np.empty(k, np.int64)
+    changed = 0
+    for r0 in range(0, nrows - h + 1):
+        for c0 in range(0, ncols - w + 1):
+            skip = False
+            for q in range(k):
+                x = gt[r0 + q // w, c0 + q % w]
+                cells_t[q] = x
+                cells_o[q] = go[r0 + q // w, c0 + q % w]
+                if x >= 0 and fixed[x]:
+                    skip = True
+            if skip or _window_settled(gt, go, r0, c0, h, w, bb):
+                continue
+            base = _window_cost(gt, go, r0, c0, h, w, blocks, bidx, btr)
+            best = base
+            best_p = -1
+            for p in range(1, perms.shape[0]):
+                for q in range(k):
+                    gt[r0 + q // w, c0 + q % w] = cells_t[perms[p, q]]
+                    go[r0 + q // w, c0 + q % w] = cells_o[perms[p, q]]
+                c = _window_cost(gt, go, r0, c0, h, w, blocks, bidx, btr)
+                if c < best - 1e-6 * (1.0 + abs(best)):
+                    best = c
+                    best_p = p
+            pp = best_p if best_p >= 0 else 0
+            for q in range(k):
+                gt[r0 + q // w, c0 + q % w] = cells_t[perms[pp, q]]
+                go[r0 + q // w, c0 + q % w] = cells_o[perms[pp, q]]
+            if best_p >= 0:
+                changed += 1
+    return changed

@@ -85,6 +85,8 @@ def parse_tile_size(text):
 def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
     with atomic_path(path, overwrite=overwrite) as tmp:
         prof = dict(profile, driver=driver, width=pixels.shape[2], height=pixels.shape[1])
+        if driver == "GTiff":
+            prof.update(compress="deflate", predictor=3 if np.dtype(pixels.dtype).kind == "f" else 2)
         if driver == "GTiff" and transform is not None:
             prof.update(transform=transform, crs=crs)
         with warnings.catch_warnings():

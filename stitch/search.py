@@ -20,6 +20,7 @@ them, with every random choice drawn from one :class:`numpy.random.Generator`.
 
 from __future__ import annotations
 
+import itertools
 import logging
 import math
 import time
@@ -153,6 +154,10 @@ def candidate_shapes(n_tiles, *, transposes=True):
     return shapes
 
 
+#: Every arrangement of six cells, for the window local search.
+_PERMS6 = np.array(list(itertools.permutations(range(6))), dtype=np.int64)
+
+
 class _Problem:
     """Arrays the kernels need, gathered once."""
 
@@ -174,9 +179,21 @@ class _Problem:
         return K.greedy(seed, 0, shape[0], shape[1], self.n, self.blocks, self.bidx, self.btr,
                         self.cand, self.second, self.bb, self.allowed, kfree)
 
-    def polish(self, grid, passes):
-        return K.improve(grid[0], grid[1], self.n, self.blocks, self.bidx, self.btr, self.cand,
-                         self.allowed, self.fixed, passes, 4)
+    def polish(self, grid, passes, windows=False):
+        """Local search in place: swaps and turns, then (optionally) window permutations."""
+        moves = K.improve(grid[0], grid[1], self.n, self.blocks, self.bidx, self.btr, self.cand,
+                          self.allowed, self.fixed, passes, 4)
+        while windows:
+            changed = 0
+            for h, w in ((2, 3), (3, 2)):
+                if grid[0].shape[0] >= h and grid[0].shape[1] >= w:
+                    changed += K.permute_windows(grid[0], grid[1], h, w, _PERMS6, self.blocks, self.bidx,
+                                                 self.btr, self.fixed, self.bb)
+            if not changed:
+                break
+            moves += changed + K.improve(grid[0], grid[1], self.n, self.blocks, self.bidx, self.btr,
+                                         self.cand, self.allowed, self.fixed, passes, 4)
+        return moves
 
     def buddy_seams(self, grid):
         """Number of best-buddy pairs a grid realises."""
@@ -306,8 +323,8 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         population.append(problem.greedy(int(seed), shape, settings.candidates_free))
     while len(population) < pop_size:
         population.append(_random_grid(rng, shape, n, problem.orientations))
-    for g in population:
-        problem.polish(g, settings.polish_passes)
+    for i, g in enumerate(population):
+        problem.polish(g, settings.polish_passes, windows=i == 0)
     costs = np.array([problem.fitness(g) for g in population])
     parts = [K.partners(g[0], g[1], n) for g in population]
 
@@ -339,8 +356,8 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         # Memetic step: polish the most promising children with local search
         # (polishing all of them costs more than it gains).
         children = np.argsort(new_costs[elite:], kind="stable")[: settings.polish] + elite
-        for c in children:
-            problem.polish(new_pop[c], settings.polish_passes)
+        for rank, c in enumerate(children):
+            problem.polish(new_pop[c], settings.polish_passes, windows=rank == 0)
             new_costs[c] = problem.fitness(new_pop[c])
         new_parts += [K.partners(g[0], g[1], n) for g in new_pop[elite:]]
         population, parts, costs = new_pop, new_parts, np.array(new_costs)
