@@ -1,3 +1,6 @@
+"""``python -m stitch``: the same as the ``stitch`` command."""
+
 from .cli import main
 
-main()
+if __name__ == "__main__":
+    main()

@@ -177,7 +177,7 @@ def from_anchors(placement, tileset):
                 f"{placement.rotations[i] * 90} degrees{' and mirrored' if placement.mirrored[i] else ''}; "
                 "pin it or solve with --rotations 0"
             )
-        implied.append(g.transform * ~_tile_offset(placement, i, tileset.width, tileset.height))
+        implied.append(g.transform @ ~_tile_offset(placement, i, tileset.width, tileset.height))
     ref, ref_i = implied[0], anchors[0]
     ref_crs = tileset.georefs[ref_i].crs
     for t, i in zip(implied[1:], anchors[1:]):
@@ -191,9 +191,9 @@ def from_anchors(placement, tileset):
         corners = [(0, 0), (placement.shape[1] * tileset.width, placement.shape[0] * tileset.height)]
         worst_px, worst_map = 0.0, 0.0
         for c in corners:
-            a = np.array(ref * c)
-            b = np.array(t * c)
-            back = np.array(~ref * tuple(b)) - np.array(c)
+            a = np.array(ref @ c)
+            b = np.array(t @ c)
+            back = np.array(~ref @ tuple(b)) - np.array(c)
             worst_px = max(worst_px, float(np.hypot(*back)))
             worst_map = max(worst_map, float(np.hypot(*(a - b))))
         if worst_px > ANCHOR_TOLERANCE_PX:
@@ -229,7 +229,7 @@ def world_file_text(transform):
     the upper-left pixel, which is the corner plus half a pixel.
     """
     t = transform
-    c, f = t * (0.5, 0.5)
+    c, f = t @ (0.5, 0.5)
     return "".join(f"{v!r}\n" for v in (float(t.a), float(t.d), float(t.b), float(t.e), float(c), float(f)))
 
 
@@ -258,5 +258,5 @@ def read_world_file(path):
     if a * e - b * d == 0:
         raise GeoreferenceError(f"world file {path.name!r} has a zero pixel size or collinear axes")
     centre = Affine(a, b, c, d, e, f)
-    return centre * Affine.translation(-0.5, -0.5)
+    return centre @ Affine.translation(-0.5, -0.5)
 

@@ -30,6 +30,7 @@ __all__ = [
     "DEFAULT_MEASURE",
     "SeamTable",
     "available_measures",
+    "band_scaling",
     "get_measure",
     "mgc",
     "normalize_strips",
@@ -48,25 +49,20 @@ ENTRY_POINT_GROUP = "stitch.seams"
 _TARGET_STD = 48.0
 
 
-def normalize_strips(sides, valid=None):
-    """Scale every band to zero mean and a common spread over the whole set.
+def band_scaling(sides, valid=None):
+    """Per-band offset and factor that bring the whole tile set to a common spread.
 
     Parameters
     ----------
     sides : sequence of ndarray
         ``EdgeStrips.sides``: arrays ``(n, length, 2, bands)``.
     valid : sequence of ndarray, optional
-        Masks of valid pixels; invalid pixels are set to the band mean (0).
+        Masks of valid pixels.
 
     Returns
     -------
-    list of ndarray
-        float32 arrays of the same shapes.
-
-    Notes
-    -----
-    Scaling is per band and shared by all tiles, so 16-bit, signed and float
-    rasters score like 8-bit ones without changing which seam is best.
+    mean, scale : ndarray, shape (bands,)
+        Scaled values are ``(x - mean) * scale``.
     """
     bands = sides[0].shape[-1]
     total = np.zeros(bands)
@@ -79,10 +75,20 @@ def normalize_strips(sides, valid=None):
         total_sq += (x * x).sum(axis=0)
         count += len(x)
     mean = total / max(count, 1)
-    var = np.maximum(total_sq / max(count, 1) - mean**2, 0.0)
-    std = np.sqrt(var)
+    std = np.sqrt(np.maximum(total_sq / max(count, 1) - mean**2, 0.0))
     # A constant band carries no information; scale 1 keeps it finite.
     scale = np.where(std > 0, _TARGET_STD / np.where(std > 0, std, 1), 1.0)
+    return mean, scale
+
+
+def normalize_strips(sides, valid=None):
+    """Scale every band to zero mean and a common spread over the whole set.
+
+    Returns float32 copies of ``sides``; invalid pixels are set to the band
+    mean (0). Scaling is per band and shared by all tiles, so 16-bit, signed
+    and float rasters score like 8-bit ones without changing which seam is best.
+    """
+    mean, scale = band_scaling(sides, valid)
     out = []
     for s, side in enumerate(sides):
         x = ((side.astype(np.float64) - mean) * scale).astype(np.float32)

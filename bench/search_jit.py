@@ -1,0 +1,84 @@
+"""What compiling the search loops buys: numba against the same code run as Python.
+
+Runs the greedy placement, one crossover and one local-search pass on the same
+puzzle twice, in this process (compiled, after a warm-up call) and in a child
+process with ``NUMBA_DISABLE_JIT=1`` (the identical source as plain Python),
+and prints the seconds of each and their ratio.
+
+    python bench/search_jit.py            # 18 x 18 tiles of 28 px from skimage's astronaut
+    python bench/search_jit.py --tiles 10
+"""
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import time
+
+import numpy as np
+
+
+def _puzzle(side):
+    from skimage import data
+
+    from stitch.seams import score_seams
+    from stitch.tiles import EdgeStrips, side_strips
+
+    img = np.moveaxis(data.astronaut(), -1, 0).astype(np.float32)
+    tiles = [img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)] for r in range(side) for c in range(side)]
+    order = np.random.default_rng(0).permutation(len(tiles))
+    tiles = [tiles[i] for i in order]
+    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
+    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    return score_seams(edges, orientations=(0,))
+
+
+def _time_kernels(side, repeats):
+    from stitch import _kernels as K
+    from stitch.search import _PERMS6, _Problem
+
+    p = _Problem(_puzzle(side), (0,))
+    shape = (side, side)
+    timings = {}
+
+    def timed(name, fn):
+        fn()  # warm-up (compiles when numba is on)
+        t0 = time.perf_counter()
+        for _ in range(repeats):
+            fn()
+        timings[name] = (time.perf_counter() - t0) / repeats
+
+    grid = p.greedy(0, shape, 3)
+    parts = K.partners(grid[0], grid[1], p.n)
+    timed("greedy", lambda: p.greedy(0, shape, 3))
+    timed("crossover", lambda: K.crossover(parts, parts, 1, 0, side, side, p.n, p.blocks, p.bidx, p.btr,
+                                           p.cand, p.bb, p.allowed, 0.005, 1))
+    timed("swap pass", lambda: K.improve(grid[0].copy(), grid[1].copy(), p.n, p.blocks, p.bidx, p.btr, p.cand,
+                                         p.allowed, p.fixed, 1, 4))
+    timed("window pass", lambda: K.permute_windows(grid[0].copy(), grid[1].copy(), 2, 3, _PERMS6, p.blocks,
+                                                   p.bidx, p.btr, p.fixed, np.full_like(p.bb, -1)))
+    return timings
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--tiles", type=int, default=18, help="puzzle side in tiles (default 18)")
+    ap.add_argument("--child", action="store_true", help=argparse.SUPPRESS)
+    args = ap.parse_args()
+    if args.child:
+        print(json.dumps(_time_kernels(args.tiles, 1)))
+        return
+    compiled = _time_kernels(args.tiles, 5)
+    env = dict(os.environ, NUMBA_DISABLE_JIT="1")
+    out = subprocess.run([sys.executable, __file__, "--child", "--tiles", str(args.tiles)], env=env,
+                         capture_output=True, text=True, check=True)
+    python = json.loads(out.stdout.strip().splitlines()[-1])
+    print(f"{args.tiles * args.tiles} tiles, upright; seconds per call")
+    print(f"{'kernel':<12} {'numba':>10} {'python':>10} {'ratio':>8}")
+    for k in compiled:
+        print(f"{k:<12} {compiled[k]:>10.5f} {python[k]:>10.4f} {python[k] / compiled[k]:>7.0f}x")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,133 @@
+"""The stitch command: exit codes 0 (done), 1 (input or processing error), 2 (usage)."""
+
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from conftest import checksums, skimage_image, write_raster
+from stitch.cli import app
+
+runner = CliRunner()
+
+
+def run(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def test_solve_writes_everything_and_says_where(tmp_path, tiles_dir):
+    before = checksums(tiles_dir)
+    out = tmp_path / "m.tif"
+    r = run("solve", tiles_dir, "-o", out)
+    assert r.exit_code == 0, r.output
+    for path in (out, tmp_path / "m.tfw", tmp_path / "m_report" / "placement.csv", tmp_path / "m_report" / "summary.json"):
+        assert path.is_file()
+        assert f"wrote {path}" in r.output
+    assert "not survey-grade" in r.output
+    assert checksums(tiles_dir) == before  # inputs untouched
+
+
+def test_existing_output_is_refused_then_replaced_with_overwrite(tmp_path, tiles_dir):
+    out = tmp_path / "m.tif"
+    out.write_bytes(b"precious")
+    r = run("solve", tiles_dir, "-o", out)
+    assert r.exit_code == 1, r.output
+    assert "--overwrite" in r.output and "m.tif" in r.output
+    assert out.read_bytes() == b"precious"
+    assert run("solve", tiles_dir, "-o", out, "--overwrite").exit_code == 0
+    assert out.read_bytes() != b"precious"
+
+
+def test_empty_folder(tmp_path):
+    (tmp_path / "empty").mkdir()
+    r = run("solve", tmp_path / "empty", "-o", tmp_path / "m.tif")
+    assert r.exit_code == 1
+    assert "no tiles in" in r.output and "empty" in r.output
+    assert "Traceback" not in r.output
+
+
+def test_mismatched_tiles_are_named(tmp_path):
+    d = tmp_path / "mixed"
+    d.mkdir()
+    img = skimage_image("camera")
+    for k in range(4):
+        write_raster(d / f"ok_{k}.tif", img[:, :32, 32 * k:32 * (k + 1)])
+    write_raster(d / "odd_size.tif", img[:, :16, :16])
+    write_raster(d / "odd_bands.tif", np.repeat(img[:, :32, :32], 3, axis=0))
+    r = run("solve", d, "-o", tmp_path / "m.tif")
+    assert r.exit_code == 1
+    line = r.output.strip().splitlines()[-1]
+    assert line.startswith("error: 2 of 6 tiles differ from the others (32x32 px, 1 band, uint8)")
+    assert "odd_size.tif (16x16 px" in line and "odd_bands.tif (32x32 px, 3 bands" in line
+
+
+def test_missing_output_folder(tmp_path, tiles_dir):
+    r = run("solve", tiles_dir, "-o", tmp_path / "nope" / "m.tif")
+    assert r.exit_code == 1
+    assert "does not exist" in r.output
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        pytest.param(["--grid", "ten"], id="bad grid"),
+        pytest.param(["--rotations", "45"], id="bad rotations"),
+        pytest.param(["--bounds", "1", "2"], id="short bounds"),
+    ],
+)
+def test_usage_errors_exit_2(tmp_path, tiles_dir, args):
+    r = run("solve", tiles_dir, "-o", tmp_path / "m.tif", *args)
+    assert r.exit_code == 2, r.output
+
+
+def test_missing_output_option_is_usage_error(tiles_dir):
+    assert run("solve", tiles_dir).exit_code == 2
+
+
+def test_grid_too_small_is_error_1(tmp_path, tiles_dir):
+    r = run("solve", tiles_dir, "-o", tmp_path / "m.tif", "--grid", "3x3")
+    assert r.exit_code == 1
+    assert "--grid 3x3 holds 9 tiles" in r.output
+
+
+def test_bad_crs_names_the_option(tmp_path, tiles_dir):
+    r = run("solve", tiles_dir, "-o", tmp_path / "m.tif", "--bounds", 0, 0, 1, 1, "--crs", "EPSG:999999")
+    assert r.exit_code == 1
+    assert "--crs" in r.output
+
+
+def test_no_georeferencing_warns_how_to_add_it(tmp_path):
+    src = write_raster(tmp_path / "plain.png", skimage_image("coffee")[:, :112, :112], driver="PNG")
+    assert run("cut", src, "-o", tmp_path / "t", "--tile-size", 28, "--shuffle").exit_code == 0
+    r = run("solve", tmp_path / "t", "-o", tmp_path / "m.tif")
+    assert r.exit_code == 0, r.output
+    assert "warning: no georeferencing found" in r.output and "--bounds" in r.output
+
+
+def test_cut_solve_score_round_trip_via_cli(tmp_path, utm_raster):
+    tiles = tmp_path / "t"
+    r = run("cut", utm_raster, "-o", tiles, "--tile-size", 28, "--shuffle", "--strip-georef", "--keep-georef", 1,
+            "--rotate", 180, "--seed", 4)
+    assert r.exit_code == 0, r.output
+    assert run("solve", tiles, "-o", tmp_path / "m.tif", "--rotations", 180).exit_code == 0
+    r = run("score", tmp_path / "m_report" / "placement.csv", tiles / "answer_key.csv", "--json")
+    assert r.exit_code == 0, r.output
+    scores = json.loads(r.output)
+    assert scores["direct"] == 1.0 and scores["neighbor"] == 1.0 and scores["perfect"] is True
+
+
+def test_score_with_broken_csv(tmp_path):
+    bad = tmp_path / "bad.csv"
+    bad.write_text("name,x\nfoo,1\n")
+    r = run("score", bad, bad)
+    assert r.exit_code == 1
+    assert "lacks column(s) tile, row, col, rotation, mirrored" in r.output
+
+
+def test_version_and_module_entry_point():
+    r = subprocess.run([sys.executable, "-m", "stitch", "--version"], capture_output=True, text=True, check=True)
+    assert r.stdout.startswith("stitch ")
+    assert run("-h").exit_code == 0

@@ -1,0 +1,122 @@
+"""Georeferencing of the mosaic, checked against GDAL (through rasterio) and affine.
+
+Outside references:
+* GDAL's world-file convention (GDAL raster driver docs, "world files"): six
+  lines A, D, B, E, C, F; C, F are the map coordinates of the *centre* of the
+  upper-left pixel, i.e. the corner plus half a pixel.
+* ``rasterio.transform.from_bounds`` / ``from_origin`` (rasterio docs).
+"""
+
+import numpy as np
+import pytest
+import rasterio
+from affine import Affine
+from rasterio.transform import from_bounds as rio_from_bounds
+from rasterio.transform import from_origin as rio_from_origin
+
+from conftest import skimage_image, write_raster
+from stitch.errors import GeoreferenceError, OptionError
+from stitch.georef import GeorefSpec, read_world_file, world_file_path, world_file_text
+from stitch.pipeline import SolveOptions, solve
+
+
+def _pixels_apart(t1, t2, width, height):
+    """Largest distance, in pixels of t1, between where t1 and t2 put the raster's corners."""
+    worst = 0.0
+    for c in [(0, 0), (width, 0), (0, height), (width, height)]:
+        x, y = t2 @ c
+        back = np.array(~t1 @ (x, y)) - np.array(c)
+        worst = max(worst, float(np.hypot(*back)))
+    return worst
+
+
+def test_anchor_tile_gives_source_transform(tmp_path, utm_raster, tiles_dir):
+    result = solve(tiles_dir, tmp_path / "out.tif")
+    with rasterio.open(utm_raster) as src, rasterio.open(result.outputs["mosaic"]) as out:
+        assert out.crs == src.crs
+        assert _pixels_apart(src.transform, out.transform, src.width, src.height) < 1e-6
+    assert result.georeference.source.startswith("anchor tile")
+
+
+def test_bounds_give_rasterio_from_bounds(tmp_path, tiles_dir):
+    bounds = (500000.0, 4100000.0, 500140.0, 4100140.0)
+    opts = SolveOptions(georef=GeorefSpec(bounds=bounds, crs="EPSG:32633"))
+    result = solve(tiles_dir, tmp_path / "out.tif", options=opts)
+    with rasterio.open(result.outputs["mosaic"]) as out:
+        assert out.transform == rio_from_bounds(*bounds, out.width, out.height)
+        assert out.crs.to_epsg() == 32633
+
+
+def test_origin_and_pixel_size_give_rasterio_from_origin(tmp_path, tiles_dir):
+    opts = SolveOptions(georef=GeorefSpec(origin=(10.5, 45.25), pixel_size=(1e-5, 2e-5), crs="EPSG:4326"))
+    result = solve(tiles_dir, tmp_path / "out.tif", options=opts)
+    with rasterio.open(result.outputs["mosaic"]) as out:
+        assert out.transform == rio_from_origin(10.5, 45.25, 1e-5, 2e-5)
+        assert out.crs.to_epsg() == 4326
+
+
+def test_world_file_lines_follow_gdal_convention():
+    # GDAL world-file convention: A, D, B, E, C, F with C, F at the UL pixel centre.
+    t = Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0)
+    lines = [float(v) for v in world_file_text(t).split()]
+    assert lines == [0.5, 0.0, 0.0, -0.5, 431000.25, 5799999.75]
+    assert world_file_path("out.tif").name == "out.tfw"
+    assert world_file_path("a/b.png").name == "b.pgw"
+    assert world_file_path("c.jpg").name == "c.jgw"
+
+
+@pytest.mark.parametrize(
+    "transform",
+    [
+        pytest.param(Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0), id="north-up metres"),
+        pytest.param(Affine(1e-5, 0.0, -122.4, 0.0, -1e-5, 37.8), id="north-up degrees"),
+        pytest.param(Affine(0.3, 0.1, 1000.0, 0.1, -0.3, 2000.0), id="rotated"),
+    ],
+)
+def test_gdal_reads_our_world_file_beside_png(tmp_path, transform):
+    """GDAL's PNG driver reads the .pgw sidecar; it must return our transform."""
+    png = write_raster(tmp_path / "t.png", skimage_image("camera")[:, :32, :32], driver="PNG")
+    world_file_path(png).write_text(world_file_text(transform))
+    with rasterio.open(png) as src:
+        assert src.transform.almost_equals(transform, precision=1e-9)
+    assert read_world_file(world_file_path(png)).almost_equals(transform, precision=1e-9)
+
+
+def test_world_file_reader_refuses_garbage(tmp_path):
+    p = tmp_path / "bad.tfw"
+    p.write_text("1\n0\n0\nfoo\n0\n0\n")
+    with pytest.raises(GeoreferenceError, match="not a number"):
+        read_world_file(p)
+    p.write_text("1\n0\n0\n")
+    with pytest.raises(GeoreferenceError, match="six"):
+        read_world_file(p)
+    p.write_text("0\n0\n0\n0\n1\n1\n")
+    with pytest.raises(GeoreferenceError, match="zero pixel size"):
+        read_world_file(p)
+
+
+@pytest.mark.parametrize(
+    "kwargs, message",
+    [
+        pytest.param(dict(bounds=(0, 0, 1, 1)), "need --crs", id="bounds without crs"),
+        pytest.param(dict(bounds=(1, 0, 0, 1), crs="EPSG:4326"), "east > west", id="inverted bounds"),
+        pytest.param(dict(origin=(0, 0), crs="EPSG:4326"), "needs --pixel-size", id="origin without size"),
+        pytest.param(dict(origin=(0, 0), pixel_size=(0, 1), crs="EPSG:4326"), "positive", id="zero pixel"),
+    ],
+)
+def test_bad_georef_options(kwargs, message):
+    with pytest.raises(OptionError, match=message):
+        GeorefSpec(**kwargs)
+
+
+def test_anchors_that_disagree_are_refused(tmp_path, utm_raster):
+    """Two anchors whose cells do not match their coordinates: exit with both names."""
+    from stitch.puzzles import cut_raster
+
+    out = tmp_path / "tiles"
+    cut = cut_raster(utm_raster, out, 28, shuffle=True, strip_georef=True, keep_georef=2, seed=3)
+    a = out / cut.georeferenced[0]
+    with rasterio.open(a, "r+") as dst:
+        dst.transform = dst.transform @ Affine.translation(7, 0)  # 7 px off
+    with pytest.raises(GeoreferenceError, match="disagree"):
+        solve(out, tmp_path / "out.tif")

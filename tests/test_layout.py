@@ -1,0 +1,76 @@
+"""Placements: orientation convention, whole-mosaic turns, the placement.csv contract."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from stitch.errors import PlacementFileError
+from stitch.layout import Placement, facing_side, format_placement_csv, read_placement_csv, seam_pairs
+from stitch.tiles import orient
+
+
+def test_orient_matches_numpy_clockwise_turn_after_mirror():
+    a = np.arange(6).reshape(1, 2, 3)
+    np.testing.assert_array_equal(orient(a, 1), np.rot90(a, -1, axes=(1, 2)))
+    np.testing.assert_array_equal(orient(a, 3, True), np.rot90(a[..., ::-1], -3, axes=(1, 2)))
+
+
+def test_facing_side_follows_the_pixels():
+    """Mark each side of a tile, orient it, and see which mark faces each way."""
+    tile = np.zeros((1, 5, 5), int)
+    tile[0, 0, 1:4], tile[0, 1:4, 4], tile[0, 4, 1:4], tile[0, 1:4, 0] = 1, 2, 3, 4  # sides 0..3 marked 1..4
+    probes = {0: (0, 2), 1: (2, 4), 2: (4, 2), 3: (2, 0)}
+    for r in range(4):
+        for m in (False, True):
+            t = orient(tile, r, m)[0]
+            for d, (i, j) in probes.items():
+                assert t[i, j] - 1 == facing_side(r, m, d)
+
+
+@settings(max_examples=50, deadline=None)
+@given(st.integers(1, 4), st.integers(1, 4), st.integers(0, 3), st.booleans(), st.integers(0, 2**31 - 1))
+def test_whole_mosaic_turns_keep_every_seam(rows, cols, k, m, seed):
+    rng = np.random.default_rng(seed)
+    n = rows * cols
+    p = Placement(tuple(map(str, range(n))), (rows, cols), np.arange(n) // cols, np.arange(n) % cols,
+                  rng.integers(0, 4, n), rng.random(n) < 0.5)
+    q = p.turned(k, mirror=m)
+    assert {tuple(s) for s in seam_pairs(p)} == {tuple(s) for s in seam_pairs(q)}
+    back = p.turned(4)
+    np.testing.assert_array_equal(back.rows, p.rows)
+    np.testing.assert_array_equal(back.rotations, p.rotations)
+
+
+def test_placement_csv_round_trip(tmp_path):
+    p = Placement(("b.tif", "a.tif", "c.tif"), (1, 3), [0, 0, -1], [1, 0, -1], [1, 0, 2], [True, False, False],
+                  [0.5, 1.0, np.nan])
+    text = format_placement_csv(p)
+    assert text.splitlines() == [
+        "tile,row,col,rotation,mirrored,confidence",
+        "a.tif,0,0,0,0,1.0000",
+        "b.tif,0,1,90,1,0.5000",
+        "c.tif,,,180,0,",
+    ]
+    f = tmp_path / "p.csv"
+    f.write_text(text)
+    q = read_placement_csv(f)
+    assert dict(zip(q.names, q.rows)) == {"a.tif": 0, "b.tif": 0, "c.tif": -1}
+    assert dict(zip(q.names, q.rotations)) == {"a.tif": 0, "b.tif": 1, "c.tif": 2}
+
+
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        pytest.param("tile,row,col\n", "lacks column", id="missing columns"),
+        pytest.param("tile,row,col,rotation,mirrored\na,0,x,0,0\n", "line 2", id="non-numeric"),
+        pytest.param("tile,row,col,rotation,mirrored\na,0,0,45,0\n", "rotation must be", id="bad rotation"),
+        pytest.param("tile,row,col,rotation,mirrored\na,0,0,0,0\na,0,1,0,0\n", "more than once", id="duplicate"),
+        pytest.param("tile,row,col,rotation,mirrored\na,0,0,0,0\nb,0,0,0,0\n", "share a cell", id="same cell"),
+    ],
+)
+def test_bad_placement_csv(tmp_path, text, message):
+    f = tmp_path / "p.csv"
+    f.write_text(text)
+    with pytest.raises(PlacementFileError, match=message):
+        read_placement_csv(f)

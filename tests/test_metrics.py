@@ -1,0 +1,65 @@
+"""Direct and neighbour comparison (Cho, Avidan & Freeman, CVPR 2010) on hand-made cases."""
+
+import numpy as np
+import pytest
+
+from stitch.layout import Placement
+from stitch.puzzles import score_placement
+
+NAMES = tuple(f"t{i}" for i in range(9))
+
+
+def grid_placement(grid, shape=None, rotations=None):
+    """Placement from a list of rows of tile numbers (-1 = hole)."""
+    grid = np.asarray(grid)
+    orient = np.zeros_like(grid) if rotations is None else np.asarray(rotations)
+    p = Placement.from_grid(NAMES, grid, orient)
+    if shape is not None:
+        p = Placement(p.names, shape, p.rows, p.cols, p.rotations, p.mirrored)
+    return p
+
+
+KEY = grid_placement([[0, 1, 2], [3, 4, 5], [6, 7, 8]])  # 12 adjacencies
+
+
+def test_identical_is_perfect():
+    s = score_placement(KEY, KEY)
+    assert (s.direct, s.neighbor, s.perfect, s.adjacencies) == (1.0, 1.0, True, 12)
+
+
+def test_shift_by_one_column_keeps_every_neighbour():
+    shifted = grid_placement([[-1, 0, 1, 2], [-1, 3, 4, 5], [-1, 6, 7, 8]])
+    s = score_placement(shifted, KEY)
+    assert (s.direct, s.neighbor, s.perfect) == (1.0, 1.0, True)
+
+
+def test_swapping_corner_and_centre_breaks_their_six_adjacencies():
+    # t0 has 2 neighbours, t4 has 4, none shared: 6 of 12 adjacencies break.
+    swapped = grid_placement([[4, 1, 2], [3, 0, 5], [6, 7, 8]])
+    s = score_placement(swapped, KEY)
+    assert s.neighbor == pytest.approx(6 / 12)
+    assert s.direct == pytest.approx(7 / 9)
+    assert not s.perfect
+
+
+def test_swapping_two_neighbours_breaks_four_adjacencies():
+    # t0 (2 neighbours) and t1 (3 neighbours) share one seam: 2 + 3 - 1 = 4 break,
+    # including their own seam, which now joins the wrong sides.
+    swapped = grid_placement([[1, 0, 2], [3, 4, 5], [6, 7, 8]])
+    s = score_placement(swapped, KEY)
+    assert s.neighbor == pytest.approx(8 / 12)
+    assert s.direct == pytest.approx(7 / 9)
+
+
+def test_global_quarter_turn_is_forgiven_only_when_frame_is_free():
+    turned = KEY.turned(1)
+    assert score_placement(turned, KEY).perfect  # auto: turned tiles present
+    assert score_placement(turned, KEY, frame="free").direct == 1.0
+    fixed = score_placement(turned, KEY, frame="fixed")
+    assert fixed.direct < 1.0 and fixed.neighbor == 1.0  # neighbours never depend on the frame
+
+
+def test_missing_tiles_count_as_wrong():
+    partial = Placement(NAMES[:8], KEY.shape, KEY.rows[:8], KEY.cols[:8], KEY.rotations[:8], KEY.mirrored[:8])
+    s = score_placement(partial, KEY)
+    assert s.missing == 1 and s.direct == pytest.approx(8 / 9) and s.neighbor == pytest.approx(10 / 12)
