@@ -86,23 +86,28 @@ def canvas_to_grid(ct, co, ext, nrows, ncols, cw):
 
 
 @njit(cache=True)
+def _step(cell, d, cw, ch):
+    """Canvas index of the cell next to ``cell`` in direction d, or -1 off the canvas."""
+    nr = cell // cw + DROW[d]
+    nc = cell % cw + DCOL[d]
+    if nr < 0 or nc < 0 or nr >= ch or nc >= cw:
+        return -1
+    return nr * cw + nc
+
+
+@njit(cache=True)
 def _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb):
     """Greedy score of tile y (oy) at a free cell: mean confidence of its seams,
     plus 2 when it is the best buddy of every placed neighbour."""
-    r = cell // cw
-    c = cell % cw
     total = 0.0
     count = 0
     all_bb = True
     for d in range(4):
-        nr = r + DROW[d]
-        nc = c + DCOL[d]
-        if nr < 0 or nc < 0 or nr >= ch or nc >= cw:
+        nb = _step(cell, d, cw, ch)
+        if nb < 0 or ct[nb] < 0:
             continue
-        x = ct[nr * cw + nc]
-        if x < 0:
-            continue
-        ox = co[nr * cw + nc]
+        x = ct[nb]
+        ox = co[nb]
         dx = (d + 2) % 4
         cost = seam_cost(blocks, bidx, btr, x, ox, dx, y, oy)
         kx = 4 * x + FACE[ox, dx]
@@ -122,21 +127,16 @@ def _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb):
 
 @njit(cache=True)
 def _best_for_cell(ct, co, cw, ch, cell, used, n, blocks, bidx, btr, cand, second, bb, allowed, kfree):
-    r = cell // cw
-    c = cell % cw
     best_s = -np.inf
     best_y = -1
     best_o = 0
     seen_any = False
     for d in range(4):
-        nr = r + DROW[d]
-        nc = c + DCOL[d]
-        if nr < 0 or nc < 0 or nr >= ch or nc >= cw:
+        nb = _step(cell, d, cw, ch)
+        if nb < 0 or ct[nb] < 0:
             continue
-        x = ct[nr * cw + nc]
-        if x < 0:
-            continue
-        ox = co[nr * cw + nc]
+        x = ct[nb]
+        ox = co[nb]
         dx = (d + 2) % 4
         kx = 4 * x + FACE[ox, dx]
         free = 0
@@ -201,15 +201,9 @@ def greedy(seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, cand, second, 
     _set(ct, co, ext, cw, cell, seed_tile, seed_o, used)
     placed = 1
     while True:
-        r = cell // cw
-        c = cell % cw
         for d in range(4):
-            nr = r + DROW[d]
-            nc = c + DCOL[d]
-            if nr < 0 or nc < 0 or nr >= ch or nc >= cw:
-                continue
-            nb = nr * cw + nc
-            if ct[nb] >= 0:
+            nb = _step(cell, d, cw, ch)
+            if nb < 0 or ct[nb] >= 0:
                 continue
             c_ok[nb] = False
             if not in_fr[nb]:
@@ -293,12 +287,9 @@ def fitness(gt, go, blocks, bidx, btr):
 def _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3):
     x = ct[cell]
     ox = co[cell]
-    r = cell // cw
-    c = cell % cw
     for d in range(4):
-        nr = r + DROW[d]
-        nc = c + DCOL[d]
-        if nr < 0 or nc < 0 or nr >= ch or nc >= cw or ct[nr * cw + nc] >= 0:
+        nb = _step(cell, d, cw, ch)
+        if nb < 0 or ct[nb] >= 0:
             continue
         k = 4 * x + FACE[ox, d]
         s3[n3, 0] = cell
