@@ -52,12 +52,12 @@ def _time_kernels(side, repeats):
     grid = p.greedy(0, shape, 3)
     parts = K.partners(grid[0], grid[1], p.n)
     timed("greedy", lambda: p.greedy(0, shape, 3))
-    timed("crossover", lambda: K.crossover(parts, parts, 1, 0, side, side, p.n, p.blocks, p.bidx, p.btr,
+    timed("crossover", lambda: K.crossover(parts, parts, 1, 0, side, side, p.n, p.tab,
                                            p.cand, p.bb, p.allowed, 0.005, 1))
-    timed("swap pass", lambda: K.improve(grid[0].copy(), grid[1].copy(), p.n, p.blocks, p.bidx, p.btr, p.cand,
+    timed("swap pass", lambda: K.improve(grid[0].copy(), grid[1].copy(), p.n, p.tab, p.cand,
                                          p.allowed, p.fixed, 1, 4))
-    timed("window pass", lambda: K.permute_windows(grid[0].copy(), grid[1].copy(), 2, 3, _PERMS6, p.blocks,
-                                                   p.bidx, p.btr, p.fixed, np.full_like(p.bb, -1)))
+    timed("window pass", lambda: K.permute_windows(grid[0].copy(), grid[1].copy(), 2, 3, _PERMS6, p.tab,
+                                                   p.fixed, np.full_like(p.bb, -1)))
     return timings
 
 

@@ -24,17 +24,38 @@ DCOL = np.array([0, 1, 0, -1], dtype=np.int64)
 
 
 @njit(cache=True)
-def seam_cost(blocks, bidx, btr, x, ox, d, y, oy):
-    """Cost of tile y (orientation oy) lying in direction d of tile x (ox)."""
+def seam_cost(tab, x, ox, d, y, oy):
+    """Cost of tile y (orientation oy) lying in direction d of tile x (ox).
+
+    ``tab`` is :attr:`stitch.search._Problem.tab`: ``(blocks, block_index,
+    transposed, candidates, candidate_costs, fallback, dense)``.
+    """
+    blocks, bidx, btr, cand, ccost, fallback, dense = tab
     a = FACE[ox, d]
     b = FACE[oy, (d + 2) % 4]
     f = 1 if (ox >= 4) != (oy >= 4) else 0
     idx = bidx[a, b, f]
     if idx < 0:
         return np.inf
-    if btr[a, b, f]:
-        return blocks[idx, y, x]
-    return blocks[idx, x, y]
+    if dense:
+        if btr[a, b, f]:
+            return blocks[idx, y, x]
+        return blocks[idx, x, y]
+    ka = 4 * x + a
+    kb = 4 * y + b
+    for q in range(cand.shape[1]):
+        c = cand[ka, q]
+        if c == 2 * kb + f:
+            return ccost[ka, q]
+        if c < 0:
+            break
+    for q in range(cand.shape[1]):
+        c = cand[kb, q]
+        if c == 2 * ka + f:
+            return ccost[kb, q]
+        if c < 0:
+            break
+    return max(fallback[ka], fallback[kb])
 
 
 @njit(cache=True)
@@ -96,7 +117,7 @@ def _step(cell, d, cw, ch):
 
 
 @njit(cache=True)
-def _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb):
+def _score_at(ct, co, cw, ch, cell, y, oy, tab, second, bb):
     """Greedy score of tile y (oy) at a free cell: mean confidence of its seams,
     plus 2 when it is the best buddy of every placed neighbour."""
     total = 0.0
@@ -109,7 +130,7 @@ def _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb):
         x = ct[nb]
         ox = co[nb]
         dx = (d + 2) % 4
-        cost = seam_cost(blocks, bidx, btr, x, ox, dx, y, oy)
+        cost = seam_cost(tab, x, ox, dx, y, oy)
         kx = 4 * x + FACE[ox, dx]
         sec = second[kx]
         total += (1.0 - cost / sec) if sec > 0 else (0.0 if cost == 0 else -1.0)
@@ -126,7 +147,7 @@ def _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb):
 
 
 @njit(cache=True)
-def _best_for_cell(ct, co, cw, ch, cell, used, n, blocks, bidx, btr, cand, second, bb, allowed, kfree):
+def _best_for_cell(ct, co, cw, ch, cell, used, n, tab, cand, second, bb, allowed, kfree):
     best_s = -np.inf
     best_y = -1
     best_o = 0
@@ -152,7 +173,7 @@ def _best_for_cell(ct, co, cw, ch, cell, used, n, blocks, bidx, btr, cand, secon
             if not allowed[oy]:
                 continue
             seen_any = True
-            s = _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb)
+            s = _score_at(ct, co, cw, ch, cell, y, oy, tab, second, bb)
             if s > best_s:
                 best_s = s
                 best_y = y
@@ -168,7 +189,7 @@ def _best_for_cell(ct, co, cw, ch, cell, used, n, blocks, bidx, btr, cand, secon
             for oy in range(8):
                 if not allowed[oy]:
                     continue
-                s = _score_at(ct, co, cw, ch, cell, y, oy, blocks, bidx, btr, second, bb)
+                s = _score_at(ct, co, cw, ch, cell, y, oy, tab, second, bb)
                 if s > best_s or best_y < 0:
                     best_s = s
                     best_y = y
@@ -177,7 +198,7 @@ def _best_for_cell(ct, co, cw, ch, cell, used, n, blocks, bidx, btr, cand, secon
 
 
 @njit(cache=True)
-def greedy(seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, cand, second, bb, allowed, kfree):
+def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, kfree):
     """Greedy best-buddy placement (after Paikin & Tal, CVPR 2015).
 
     Repeatedly fills the free cell, next to placed tiles, whose best tile
@@ -223,7 +244,7 @@ def greedy(seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, cand, second, 
                 nfr -= 1
                 continue
             if not c_ok[f] or (c_t[f] >= 0 and used[c_t[f]]):
-                y, o, s = _best_for_cell(ct, co, cw, ch, f, used, n, blocks, bidx, btr, cand, second, bb,
+                y, o, s = _best_for_cell(ct, co, cw, ch, f, used, n, tab, cand, second, bb,
                                          allowed, kfree)
                 c_t[f] = y
                 c_o[f] = o
@@ -267,7 +288,7 @@ def partners(gt, go, n):
 
 
 @njit(cache=True)
-def fitness(gt, go, blocks, bidx, btr):
+def fitness(gt, go, tab):
     """Total seam cost of a grid: the search minimises it."""
     nrows, ncols = gt.shape
     total = 0.0
@@ -277,9 +298,9 @@ def fitness(gt, go, blocks, bidx, btr):
             if x < 0:
                 continue
             if j + 1 < ncols and gt[i, j + 1] >= 0:
-                total += seam_cost(blocks, bidx, btr, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1])
+                total += seam_cost(tab, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1])
             if i + 1 < nrows and gt[i + 1, j] >= 0:
-                total += seam_cost(blocks, bidx, btr, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j])
+                total += seam_cost(tab, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j])
     return total
 
 
@@ -311,7 +332,7 @@ def _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3):
 
 
 @njit(cache=True)
-def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, cand, bb, allowed,
+def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed,
               mutation, rseed):
     """Grow a child from two parents (Sholomon, David & Netanyahu, CVPR 2013).
 
@@ -424,7 +445,7 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, can
                             continue
                         for oi in range(n_allowed):
                             oy = allowed_list[oi]
-                            cst = seam_cost(blocks, bidx, btr, x, ox, d, y, oy)
+                            cst = seam_cost(tab, x, ox, d, y, oy)
                             if ty < 0 or cst < best:
                                 best = cst
                                 ty = y
@@ -439,7 +460,7 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, blocks, bidx, btr, can
 
 
 @njit(cache=True)
-def _cell_cost(gt, go, i, j, blocks, bidx, btr):
+def _cell_cost(gt, go, i, j, tab):
     """Cost of the seams around cell (i, j)."""
     nrows, ncols = gt.shape
     x = gt[i, j]
@@ -453,23 +474,23 @@ def _cell_cost(gt, go, i, j, blocks, bidx, btr):
             continue
         y = gt[ni, nj]
         if y >= 0:
-            total += seam_cost(blocks, bidx, btr, x, go[i, j], d, y, go[ni, nj])
+            total += seam_cost(tab, x, go[i, j], d, y, go[ni, nj])
     return total
 
 
 @njit(cache=True)
-def _pair_cost(gt, go, i1, j1, i2, j2, blocks, bidx, btr):
+def _pair_cost(gt, go, i1, j1, i2, j2, tab):
     """Cost of the seams around two cells, a shared seam counted once."""
-    total = _cell_cost(gt, go, i1, j1, blocks, bidx, btr) + _cell_cost(gt, go, i2, j2, blocks, bidx, btr)
+    total = _cell_cost(gt, go, i1, j1, tab) + _cell_cost(gt, go, i2, j2, tab)
     if abs(i1 - i2) + abs(j1 - j2) == 1 and gt[i1, j1] >= 0 and gt[i2, j2] >= 0:
         for d in range(4):
             if i1 + DROW[d] == i2 and j1 + DCOL[d] == j2:
-                total -= seam_cost(blocks, bidx, btr, gt[i1, j1], go[i1, j1], d, gt[i2, j2], go[i2, j2])
+                total -= seam_cost(tab, gt[i1, j1], go[i1, j1], d, gt[i2, j2], go[i2, j2])
     return total
 
 
 @njit(cache=True)
-def improve(gt, go, n, blocks, bidx, btr, cand, allowed, fixed, max_passes, per_side):
+def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
     """Local search: swap tiles and turn them while the total cost drops.
 
     Only swaps that bring in a top candidate of a neighbour's facing side are
@@ -491,14 +512,14 @@ def improve(gt, go, n, blocks, bidx, btr, cand, allowed, fixed, max_passes, per_
                 if x < 0 or fixed[x]:
                     continue
                 # Turns in place.
-                before = _cell_cost(gt, go, i, j, blocks, bidx, btr)
+                before = _cell_cost(gt, go, i, j, tab)
                 ox = go[i, j]
                 best_o = ox
                 for o in range(8):
                     if not allowed[o] or o == ox:
                         continue
                     go[i, j] = o
-                    c = _cell_cost(gt, go, i, j, blocks, bidx, btr)
+                    c = _cell_cost(gt, go, i, j, tab)
                     if c < before - 1e-6 * (1.0 + before):
                         before = c
                         best_o = o
@@ -531,7 +552,7 @@ def improve(gt, go, n, blocks, bidx, btr, cand, allowed, fixed, max_passes, per_
                         j2 = pos[y] % ncols
                         ox = go[i, j]
                         oy_old = go[i2, j2]
-                        before = _pair_cost(gt, go, i, j, i2, j2, blocks, bidx, btr)
+                        before = _pair_cost(gt, go, i, j, i2, j2, tab)
                         gt[i, j] = y
                         go[i, j] = oy
                         gt[i2, j2] = x
@@ -541,7 +562,7 @@ def improve(gt, go, n, blocks, bidx, btr, cand, allowed, fixed, max_passes, per_
                             if not allowed[o]:
                                 continue
                             go[i2, j2] = o
-                            c = _pair_cost(gt, go, i, j, i2, j2, blocks, bidx, btr)
+                            c = _pair_cost(gt, go, i, j, i2, j2, tab)
                             if c < best:
                                 best = c
                                 best_ox = o
@@ -562,7 +583,7 @@ def improve(gt, go, n, blocks, bidx, btr, cand, allowed, fixed, max_passes, per_
 
 
 @njit(cache=True)
-def _window_cost(gt, go, r0, c0, h, w, blocks, bidx, btr):
+def _window_cost(gt, go, r0, c0, h, w, tab):
     """Exact cost of every seam touching the window, each counted once."""
     nrows, ncols = gt.shape
     total = 0.0
@@ -582,7 +603,7 @@ def _window_cost(gt, go, r0, c0, h, w, blocks, bidx, btr):
                 inside = r0 <= ni < r0 + h and c0 <= nj < c0 + w
                 if inside and (d == 0 or d == 3):
                     continue  # counted from the other cell
-                total += seam_cost(blocks, bidx, btr, x, go[i, j], d, y, go[ni, nj])
+                total += seam_cost(tab, x, go[i, j], d, y, go[ni, nj])
     return total
 
 
@@ -611,7 +632,7 @@ def _window_settled(gt, go, r0, c0, h, w, bb):
 
 
 @njit(cache=True)
-def permute_windows(gt, go, h, w, perms, blocks, bidx, btr, fixed, bb):
+def permute_windows(gt, go, h, w, perms, tab, fixed, bb):
     """Try every arrangement of the tiles inside each ``h x w`` window.
 
     Fixes small scrambled blocks that no single swap improves (each swap on
@@ -636,14 +657,14 @@ def permute_windows(gt, go, h, w, perms, blocks, bidx, btr, fixed, bb):
                     skip = True
             if skip or _window_settled(gt, go, r0, c0, h, w, bb):
                 continue
-            base = _window_cost(gt, go, r0, c0, h, w, blocks, bidx, btr)
+            base = _window_cost(gt, go, r0, c0, h, w, tab)
             best = base
             best_p = -1
             for p in range(1, perms.shape[0]):
                 for q in range(k):
                     gt[r0 + q // w, c0 + q % w] = cells_t[perms[p, q]]
                     go[r0 + q // w, c0 + q % w] = cells_o[perms[p, q]]
-                c = _window_cost(gt, go, r0, c0, h, w, blocks, bidx, btr)
+                c = _window_cost(gt, go, r0, c0, h, w, tab)
                 if c < best - 1e-6 * (1.0 + abs(best)):
                     best = c
                     best_p = p

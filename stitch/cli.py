@@ -102,7 +102,7 @@ def main_callback(
 
 
 def _measure_help():
-    from .seams import available_measures
+    from .measures import available_measures
 
     return f"Seam measure: {', '.join(available_measures())}."
 
@@ -229,6 +229,16 @@ def score(
     typer.echo(f"perfect reconstruction: {'yes' if scores.perfect else 'no'}")
     if scores.missing:
         typer.echo(f"missing from the placement: {scores.missing} tile(s)")
+
+
+@app.command()
+def plugins():
+    """List the seam measures and search strategies installed (built in and by plugins)."""
+    from .measures import available_measures
+    from .search import SEARCHES
+
+    typer.echo(f"seam measures (--seam): {', '.join(available_measures())}")
+    typer.echo(f"search strategies (--search): {', '.join(SEARCHES)}")
 
 
 def main():

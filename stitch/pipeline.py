@@ -139,7 +139,8 @@ def place_tiles(tileset, options=None, *, progress=None):
         r, c = options.grid
         raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
-    table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates)
+    table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates,
+                        blank=tileset.blank)
     result = search_placement(table, shape=options.grid, orientations=orientations, settings=options.search,
                               rng=options.seed, progress=progress)
     raw = Placement.from_grid(tileset.names, result.tiles, result.orientations)

@@ -1,52 +1,51 @@
-"""Seam dissimilarity: how badly two tile sides continue each other.
+"""The seam table: every seam the search may form, scored, ranked and normalised.
 
-A *measure* is a pure function of two stacks of edge strips::
+For each pair of sides that the allowed orientations can bring together, a
+*block* of seam costs is computed with a measure from :mod:`stitch.measures`.
+Small sets keep the blocks (dense lookups); large ones keep only each side's
+``k`` best partners, computed block by block in row chunks, so memory grows
+linearly with the tile count. Either way the table also holds each side's
+second-best cost (to normalise costs across tiles), best buddies and a
+per-seam confidence.
 
-    measure(left, right) -> ndarray, shape (len(left), len(right))
-
-``left[i]`` and ``right[j]`` are ``(length, 2, bands)`` float32 strips (see
-:mod:`stitch.tiles`): column 1 holds the boundary pixels, column 0 the pixels
-one step inside, and row ``p`` of ``right[j]`` lies across the seam from row
-``p`` of ``left[i]``. Lower is better. Because a measure sees only the arrays
-it needs, any block of the table can be computed anywhere.
-
-The :class:`SeamTable` holds one such block for every pair of sides that the
-allowed orientations can bring together, plus each side's ranked candidates,
-the second-best score used for normalisation, and best buddies.
+Blank tiles (constant or all nodata) and sides with no valid pixels get a
+neutral score: the median of their block, so they neither attract nor repel.
 """
 
 from __future__ import annotations
 
 import logging
 from dataclasses import dataclass
-from importlib.metadata import entry_points
 
 import numpy as np
+from numba import njit, prange
 
 from .errors import OptionError
 from .layout import facing_side
+from .measures import DEFAULT_MEASURE, available_measures, call_measure, get_measure
 
 __all__ = [
     "DEFAULT_MEASURE",
     "SeamTable",
     "available_measures",
     "band_scaling",
-    "get_measure",
-    "mgc",
     "normalize_strips",
     "score_seams",
-    "ssd",
+    "seam_block",
 ]
 
 log = logging.getLogger(__name__)
-
-#: Entry-point group under which other packages register measures.
-ENTRY_POINT_GROUP = "stitch.seams"
 
 #: Per-band spread the strips are scaled to before scoring; close to that of
 #: 8-bit photographs, so the unit dummy gradients of MGC regularise 16-bit and
 #: float rasters as they do 8-bit ones.
 _TARGET_STD = 48.0
+
+#: Dense blocks are kept while they fit in this many bytes.
+DENSE_LIMIT_BYTES = 512 * 2**20
+
+#: Largest chunk of a block computed at once, in bytes of float32 costs.
+CHUNK_BYTES = 64 * 2**20
 
 
 def band_scaling(sides, valid=None):
@@ -69,10 +68,10 @@ def band_scaling(sides, valid=None):
     total_sq = np.zeros(bands)
     count = 0
     for s, side in enumerate(sides):
-        v = np.ones(side.shape[:-1], bool) if valid is None else valid[s]
-        x = side[v].astype(np.float64)
+        x = side.reshape(-1, bands) if valid is None or valid[s].all() else side[valid[s]]
+        x = x.astype(np.float64)
         total += x.sum(axis=0)
-        total_sq += (x * x).sum(axis=0)
+        total_sq += np.einsum("ij,ij->j", x, x)
         count += len(x)
     mean = total / max(count, 1)
     std = np.sqrt(np.maximum(total_sq / max(count, 1) - mean**2, 0.0))
@@ -91,106 +90,11 @@ def normalize_strips(sides, valid=None):
     mean, scale = band_scaling(sides, valid)
     out = []
     for s, side in enumerate(sides):
-        x = ((side.astype(np.float64) - mean) * scale).astype(np.float32)
-        if valid is not None:
+        x = (side - mean.astype(np.float32)) * scale.astype(np.float32)
+        if valid is not None and not valid[s].all():
             x[~valid[s]] = 0.0
         out.append(x)
     return out
-
-
-def ssd(left, right):
-    """Sum of squared differences between the two boundary pixel columns.
-
-    The plain reference measure: ``sum_p ||x_p - y_p||^2`` over the boundary
-    pixels ``x`` of the left strip and ``y`` of the right one, expanded into a
-    matrix product ``|x|^2 + |y|^2 - 2 x.y`` so it runs at BLAS speed.
-
-    Examples
-    --------
-    >>> a = np.zeros((1, 2, 2, 1), np.float32); b = np.ones((1, 2, 2, 1), np.float32)
-    >>> float(ssd(a, b)[0, 0])
-    2.0
-    """
-    x = left[:, :, 1, :].reshape(len(left), -1).astype(np.float32)
-    y = right[:, :, 1, :].reshape(len(right), -1).astype(np.float32)
-    d = (x * x).sum(1)[:, None] + (y * y).sum(1)[None, :] - 2.0 * (x @ y.T)
-    return np.maximum(d, 0.0)
-
-
-def _mgc_stats(strips):
-    """Gradient statistics of one side of each tile (Gallagher 2012)."""
-    s = strips.astype(np.float64)
-    n, length, _, bands = s.shape
-    edge = s[:, :, 1, :]
-    grad = edge - s[:, :, 0, :]
-    mu = grad.mean(axis=1)
-    # Dummy gradients (zero, +-1 on all bands, +-1 on each band) keep the
-    # covariance invertible on flat or single-valued edges, as in the paper.
-    eye = np.eye(bands)
-    dummies = np.concatenate([np.zeros((1, bands)), np.ones((1, bands)), -np.ones((1, bands)), eye, -eye])
-    g = np.concatenate([grad, np.broadcast_to(dummies, (n,) + dummies.shape)], axis=1)
-    gc = g - g.mean(axis=1, keepdims=True)
-    cov = np.einsum("npi,npj->nij", gc, gc) / (g.shape[1] - 1)
-    inv = np.linalg.inv(cov)
-    a = edge + mu[:, None, :]
-    a_inv = np.einsum("npi,nij->npj", a, inv)
-    const = np.einsum("npi,npi->n", a_inv, a)
-    q = np.einsum("npi,npj->nij", edge, edge)
-    return edge, inv, a_inv, const, q
-
-
-def mgc(left, right):
-    """Mahalanobis gradient compatibility (MGC).
-
-    For a left tile ``i`` and right tile ``j`` with boundary columns ``x`` and
-    ``y``, the left tile's outward gradients ``x - x_in`` have mean ``mu_i``
-    and covariance ``S_i``; the gradient across the seam should look like them:
-
-    ``D_LR(i, j) = sum_p (y_p - x_p - mu_i) S_i^-1 (y_p - x_p - mu_i)^T``
-
-    and symmetrically ``D_RL`` from the right tile's side. MGC is
-    ``D_LR + D_RL``. Both expand into constants plus inner products, so the
-    whole block is one float32 matrix product.
-
-    References
-    ----------
-    .. [1] A. C. Gallagher, "Jigsaw puzzles with pieces of unknown orientation",
-       CVPR 2012.
-    """
-    e_l, s_l, as_l, c_l, q_l = _mgc_stats(left)
-    e_r, s_r, bs_r, c_r, q_r = _mgc_stats(right)
-    n, m = len(left), len(right)
-    lf = np.concatenate([s_l.reshape(n, -1), q_l.reshape(n, -1), as_l.reshape(n, -1), e_l.reshape(n, -1)], 1)
-    rf = np.concatenate([q_r.reshape(m, -1), s_r.reshape(m, -1), -2 * e_r.reshape(m, -1), -2 * bs_r.reshape(m, -1)], 1)
-    # The strips are centred per band (normalize_strips), which keeps the
-    # cancelling terms small enough for float32.
-    d = lf.astype(np.float32) @ rf.astype(np.float32).T
-    d += c_l.astype(np.float32)[:, None]
-    d += c_r.astype(np.float32)[None, :]
-    return np.maximum(d, 0.0)
-
-
-_BUILTIN = {"mgc": mgc, "ssd": ssd}
-
-#: Measure used when none is named.
-DEFAULT_MEASURE = "mgc"
-
-
-def available_measures():
-    """Names of built-in and installed measures, sorted."""
-    names = set(_BUILTIN)
-    names.update(ep.name for ep in entry_points(group=ENTRY_POINT_GROUP))
-    return sorted(names)
-
-
-def get_measure(name):
-    """The measure registered under ``name`` (built in or by entry point)."""
-    if name in _BUILTIN:
-        return _BUILTIN[name]
-    for ep in entry_points(group=ENTRY_POINT_GROUP):
-        if ep.name == name:
-            return ep.load()
-    raise OptionError(f"seam measure {name!r} is unknown; choose one of {', '.join(available_measures())}")
 
 
 def _side_pairs(orientations):
@@ -211,6 +115,147 @@ def _side_pairs(orientations):
     return sorted(pairs)
 
 
+def _row_valid(valid):
+    """Rows of a strip usable by a measure: inner and boundary pixel both valid."""
+    return valid[..., 0] & valid[..., 1]
+
+
+def seam_block(measure, left, right, left_valid=None, right_valid=None, *, flip=False):
+    """One block of seam costs, a pure function of two edge arrays.
+
+    Parameters
+    ----------
+    measure : callable
+        A measure from :mod:`stitch.measures` (or a plugin).
+    left, right : ndarray, shape (n, length, 2, bands)
+        Normalised strips of the two sides, each in its own row order
+        (:mod:`stitch.tiles`).
+    left_valid, right_valid : ndarray of bool, shape (n, length), optional
+        Usable rows.
+    flip : bool
+        Exactly one of the two tiles is mirrored: the rows already line up.
+        Otherwise the right strips are read in reverse, which is how two
+        unmirrored tiles meet.
+
+    Returns
+    -------
+    ndarray, shape (len(left), len(right)), float32
+        NaN where the measure had no rows to compare.
+    """
+    if not flip:
+        right = right[:, ::-1]
+        right_valid = None if right_valid is None else right_valid[:, ::-1]
+    block = call_measure(measure, left, np.ascontiguousarray(right), left_valid,
+                         None if right_valid is None else np.ascontiguousarray(right_valid))
+    block = np.asarray(block, dtype=np.float32)
+    if block.shape != (len(left), len(right)):
+        raise OptionError(f"seam measure returned shape {block.shape}, expected {(len(left), len(right))}")
+    return block
+
+
+@njit(parallel=True, cache=True)
+def _count_bad(block):
+    """Number of entries that are not finite or are negative."""
+    n, m = block.shape
+    total = 0
+    for i in prange(n):
+        c = 0
+        for j in range(m):
+            v = block[i, j]
+            if not (v >= 0.0 and v < np.inf):
+                c += 1
+        total += c
+    return total
+
+
+def _neutralize(block, dead_rows, dead_cols):
+    """Replace NaN, negative and dead entries by the block's median (neutral)."""
+    if not dead_rows.any() and not dead_cols.any() and _count_bad(block) == 0:
+        return block
+    bad = ~np.isfinite(block)
+    np.logical_or(bad, block < 0, out=bad)
+    if dead_rows.any():
+        bad[dead_rows] = True
+    if dead_cols.any():
+        bad[:, dead_cols] = True
+    if not bad.any():
+        return block
+    good = block[~bad]
+    neutral = np.float32(np.median(good)) if good.size else np.float32(1.0)
+    block[bad] = neutral
+    return block
+
+
+@njit(parallel=True, cache=True)
+def _topk_rows_kernel(block, k):
+    """Indices and values of the k smallest entries of each row, ascending."""
+    n, m = block.shape
+    idx = np.full((n, k), -1, np.int64)
+    val = np.full((n, k), np.inf, np.float32)
+    for i in prange(n):
+        for j in range(m):
+            v = block[i, j]
+            if v < val[i, k - 1]:
+                p = k - 1
+                while p > 0 and val[i, p - 1] > v:
+                    val[i, p] = val[i, p - 1]
+                    idx[i, p] = idx[i, p - 1]
+                    p -= 1
+                val[i, p] = v
+                idx[i, p] = j
+    return idx, val
+
+
+@njit(parallel=True, cache=True)
+def _topk_cols_kernel(block, k):
+    """Like :func:`_topk_rows_kernel` for columns, reading the block row by row."""
+    n, m = block.shape
+    idx = np.full((m, k), -1, np.int64)
+    val = np.full((m, k), np.inf, np.float32)
+    worst = np.full(m, np.inf, np.float32)  # val[:, k - 1], kept contiguous for the hot test
+    stride = 512
+    for c0 in prange((m + stride - 1) // stride):
+        lo = c0 * stride
+        hi = min(m, lo + stride)
+        for i in range(n):
+            for j in range(lo, hi):
+                v = block[i, j]
+                if v < worst[j]:
+                    p = k - 1
+                    while p > 0 and val[j, p - 1] > v:
+                        val[j, p] = val[j, p - 1]
+                        idx[j, p] = idx[j, p - 1]
+                        p -= 1
+                    val[j, p] = v
+                    idx[j, p] = i
+                    worst[j] = val[j, k - 1]
+    return idx, val
+
+
+def _merge_topk(codes, costs, new_codes, new_costs, k):
+    """Keep the k lowest costs per row of two candidate lists."""
+    all_codes = np.concatenate([codes, new_codes], axis=1)
+    all_costs = np.concatenate([costs, new_costs], axis=1)
+    kk = min(k, all_costs.shape[1])
+    part = np.argpartition(all_costs, kk - 1, axis=1)[:, :kk]
+    pc = np.take_along_axis(all_costs, part, axis=1)
+    order = np.argsort(pc, axis=1, kind="stable")
+    part = np.take_along_axis(part, order, axis=1)
+    out_codes = np.full((len(codes), k), -1, np.int64)
+    out_costs = np.full((len(codes), k), np.inf, np.float32)
+    out_codes[:, :kk] = np.take_along_axis(all_codes, part, axis=1)
+    out_costs[:, :kk] = np.take_along_axis(all_costs, part, axis=1)
+    return out_codes, out_costs
+
+
+def _topk(block, codes, k, *, axis):
+    """Top-k partner codes and costs along rows (axis 1) or columns (axis 0)."""
+    kk = min(k, block.shape[axis])
+    kernel = _topk_rows_kernel if axis == 1 else _topk_cols_kernel
+    idx, val = kernel(block, kk)
+    return codes[np.maximum(idx, 0)], val
+
+
 @dataclass(frozen=True, eq=False)
 class SeamTable:
     """Seam costs for every pair of sides the search may join.
@@ -220,45 +265,62 @@ class SeamTable:
     n_tiles : int
     orientations : tuple of int
         Allowed orientation codes (see :mod:`stitch.layout`).
+    dense : bool
+        True when ``blocks`` holds every cost; otherwise only candidates are
+        kept and any other pair costs ``max(fallback[a], fallback[b])``.
     blocks : ndarray, shape (n_blocks, n_tiles, n_tiles), float32
         ``blocks[block_index[a, b, f]][i, j]`` is the cost of side ``a`` of
         tile ``i`` against side ``b`` of tile ``j`` (flip ``f``: one of them
         mirrored); when ``transposed[a, b, f]`` the block is read as ``[j, i]``.
-        A tile against itself costs ``inf``.
+        A tile against itself costs ``inf``. Empty when not dense.
     block_index : ndarray, shape (4, 4, 2), int64; -1 where the sides never meet.
     transposed : ndarray, shape (4, 4, 2), bool
     candidates : ndarray, shape (4 * n_tiles, k), int64
         For each side slot, partners ``2 * slot + flip`` from best to worst;
         -1 pads.
     candidate_costs : ndarray, shape (4 * n_tiles, k), float32
+    fallback : ndarray, shape (4 * n_tiles,), float32
+        Worst kept candidate cost of each slot (cost of unlisted pairs).
     second : ndarray, shape (4 * n_tiles,), float32
         Second-best cost of each slot (normalises costs across tiles).
     best_buddies : ndarray, shape (4 * n_tiles,), int64
         ``2 * slot + flip`` of the mutual best partner, or -1.
+    dead : ndarray, shape (4 * n_tiles,), bool
+        Slots scored neutrally (blank tile, or no valid pixel on that side).
     measure : str
     """
 
     n_tiles: int
     orientations: tuple[int, ...]
+    dense: bool
     blocks: np.ndarray
     block_index: np.ndarray
     transposed: np.ndarray
     candidates: np.ndarray
     candidate_costs: np.ndarray
+    fallback: np.ndarray
     second: np.ndarray
     best_buddies: np.ndarray
+    dead: np.ndarray
     measure: str
 
     def cost(self, slot_a, slot_b, flip=0):
         """Cost of joining two side slots (vectorised over arrays)."""
-        slot_a, slot_b, flip = np.broadcast_arrays(np.asarray(slot_a), np.asarray(slot_b), np.asarray(flip))
-        ta, sa, tb, sb = slot_a // 4, slot_a % 4, slot_b // 4, slot_b % 4
+        slot_a, slot_b, flip = (np.asarray(v, np.int64) for v in np.broadcast_arrays(slot_a, slot_b, flip))
+        sa, sb = slot_a % 4, slot_b % 4
         idx = self.block_index[sa, sb, flip]
-        tr = self.transposed[sa, sb, flip]
-        i = np.where(tr, tb, ta)
-        j = np.where(tr, ta, tb)
-        out = np.where(idx >= 0, self.blocks[np.maximum(idx, 0), i, j], np.inf)
-        return out
+        if self.dense:
+            tr = self.transposed[sa, sb, flip]
+            ta, tb = slot_a // 4, slot_b // 4
+            i, j = np.where(tr, tb, ta), np.where(tr, ta, tb)
+            return np.where(idx >= 0, self.blocks[np.maximum(idx, 0), i, j], np.inf)
+        out = np.maximum(self.fallback[slot_a], self.fallback[slot_b]).astype(np.float64)
+        for a, b, f, o in ((slot_a, slot_b, flip, None), (slot_b, slot_a, flip, None)):
+            hit = self.candidates[a] == (2 * b + f)[..., None]
+            found = hit.any(axis=-1)
+            val = np.take_along_axis(self.candidate_costs[a], hit.argmax(axis=-1)[..., None], axis=-1)[..., 0]
+            out = np.where(found, val, out)
+        return np.where(idx >= 0, out, np.inf)
 
     def confidence(self, slot_a, slot_b, flip=0):
         """Seam confidence in [0, 1]: ``1 - cost / second-best`` of both sides, clipped."""
@@ -266,10 +328,11 @@ class SeamTable:
         sec = np.minimum(self.second[slot_a], self.second[slot_b])
         with np.errstate(divide="ignore", invalid="ignore"):
             r = np.where(sec > 0, 1.0 - c / sec, 0.0)
+        r = np.where(self.dead[slot_a] | self.dead[slot_b], 0.0, r)
         return np.clip(np.nan_to_num(r, nan=0.0), 0.0, 1.0)
 
 
-def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16):
+def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blank=None, dense=None):
     """Score every seam the allowed orientations can form.
 
     Parameters
@@ -278,9 +341,14 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16):
     orientations : tuple of int, optional
         Allowed orientation codes, from :func:`stitch.layout.allowed_orientations`.
     measure : str or callable, optional
-        A registered measure name or a function ``(left, right) -> costs``.
+        A registered measure name or a measure function.
     k : int, optional
         Candidates kept per side slot.
+    blank : ndarray of bool, optional
+        Tiles to score neutrally (constant or all nodata).
+    dense : bool, optional
+        Keep every cost (True) or only candidates (False); by default dense
+        while the blocks fit in :data:`DENSE_LIMIT_BYTES`.
 
     Returns
     -------
@@ -289,74 +357,65 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16):
     fn = get_measure(measure) if isinstance(measure, str) else measure
     name = measure if isinstance(measure, str) else getattr(measure, "__name__", "custom")
     sides = normalize_strips(edges.sides, edges.valid)
+    rows_ok = [_row_valid(v) for v in edges.valid]
+    masked = not all(r.all() for r in rows_ok)
     n = sides[0].shape[0]
-    pairs = _side_pairs(orientations)
+    blank = np.zeros(n, bool) if blank is None else np.asarray(blank, bool)
+    dead = np.stack([blank | (r.sum(axis=1) < 2) for r in rows_ok], axis=1)  # (n, 4)
+
     block_index = np.full((4, 4, 2), -1, np.int64)
     transposed = np.zeros((4, 4, 2), bool)
-    blocks = []
-    for a, b, f in pairs:
-        if block_index[a, b, f] >= 0:
-            continue
-        if sides[a].shape[1] != sides[b].shape[1]:
-            continue  # sides of different length never meet
-        right = sides[b] if f else sides[b][:, ::-1]
-        block = np.asarray(fn(sides[a], np.ascontiguousarray(right)), dtype=np.float32)
-        if block.shape != (n, n):
-            raise OptionError(f"seam measure {name!r} returned shape {block.shape}, expected {(n, n)}")
-        block = np.where(np.isfinite(block), block, np.float32(np.finfo(np.float32).max))
-        np.fill_diagonal(block, np.inf)
-        block_index[a, b, f] = len(blocks)
-        block_index[b, a, f] = len(blocks)
+    unique = []
+    for a, b, f in _side_pairs(orientations):
+        if block_index[a, b, f] >= 0 or sides[a].shape[1] != sides[b].shape[1]:
+            continue  # done already, or sides of different length never meet
+        block_index[a, b, f] = block_index[b, a, f] = len(unique)
         transposed[b, a, f] = a != b
-        blocks.append(block)
-    blocks = np.stack(blocks) if blocks else np.empty((0, n, n), np.float32)
+        unique.append((a, b, f))
+    if dense is None:
+        dense = len(unique) * n * n * 4 <= DENSE_LIMIT_BYTES
+    blocks = np.empty((len(unique) if dense else 0, n, n), np.float32)
 
-    k = max(1, min(k, 4 * n * 2))
-    candidates = np.full((4 * n, k), -1, np.int64)
-    cand_costs = np.full((4 * n, k), np.inf, np.float32)
-    for a in range(4):
-        cols, codes = [], []
-        for b in range(4):
-            for f in range(2):
-                idx = block_index[a, b, f]
-                if idx < 0:
-                    continue
-                blk = blocks[idx].T if transposed[a, b, f] else blocks[idx]
-                cols.append(blk)
-                codes.append(2 * (4 * np.arange(n) + b) + f)
-        if not cols:
-            continue
-        row_costs = np.concatenate(cols, axis=1)
-        row_codes = np.concatenate(codes)
-        kk = min(k, row_costs.shape[1])
-        part = np.argpartition(row_costs, kk - 1, axis=1)[:, :kk] if kk < row_costs.shape[1] else \
-            np.tile(np.arange(row_costs.shape[1]), (n, 1))
-        pc = np.take_along_axis(row_costs, part, axis=1)
-        order = np.argsort(pc, axis=1, kind="stable")
-        part = np.take_along_axis(part, order, axis=1)
-        slots = 4 * np.arange(n) + a
-        candidates[slots, :kk] = row_codes[part]
-        cand_costs[slots, :kk] = np.take_along_axis(row_costs, part, axis=1)
-    candidates[~np.isfinite(cand_costs)] = -1
-    second = np.where(np.isfinite(cand_costs[:, min(1, k - 1)]), cand_costs[:, min(1, k - 1)], 0).astype(np.float32)
+    k = max(2, min(k, 8 * n))
+    cand = np.full((4 * n, k), -1, np.int64)
+    cand_cost = np.full((4 * n, k), np.inf, np.float32)
+    chunk = max(1, CHUNK_BYTES // (4 * max(n, 1)))
+    tiles = np.arange(n)
+    for idx, (a, b, f) in enumerate(unique):
+        rv_a = rows_ok[a] if masked else None
+        rv_b = rows_ok[b] if masked else None
+        col_codes = 2 * (4 * tiles + b) + f
+        for r0 in range(0, n, chunk):
+            r1 = min(n, r0 + chunk)
+            blk = seam_block(fn, sides[a][r0:r1], sides[b], None if rv_a is None else rv_a[r0:r1], rv_b, flip=bool(f))
+            blk = _neutralize(blk, dead[r0:r1, a], dead[:, b])
+            blk[np.arange(r1 - r0), np.arange(r0, r1)] = np.inf  # a tile never meets itself
+            if dense:
+                blocks[idx, r0:r1] = blk
+            slots = 4 * tiles[r0:r1] + a
+            new = _topk(blk, col_codes, k, axis=1)
+            cand[slots], cand_cost[slots] = _merge_topk(cand[slots], cand_cost[slots], *new, k)
+            if a != b:
+                row_codes = 2 * (4 * tiles[r0:r1] + a) + f
+                new = _topk(blk, row_codes, k, axis=0)
+                cslots = 4 * tiles + b
+                cand[cslots], cand_cost[cslots] = _merge_topk(cand[cslots], cand_cost[cslots], *new, k)
+    cand[~np.isfinite(cand_cost)] = -1
+    second = np.where(np.isfinite(cand_cost[:, 1]), cand_cost[:, 1], 0).astype(np.float32)
+    finite = np.where(np.isfinite(cand_cost), cand_cost, -np.inf)
+    fallback = np.maximum(finite.max(axis=1), 0).astype(np.float32)
 
-    best = candidates[:, 0]
+    dead_slots = dead.reshape(-1)
+    best = cand[:, 0]
     buddies = np.full(4 * n, -1, np.int64)
-    ok = best >= 0
-    partner_slot = np.where(ok, best // 2, 0)
-    back = candidates[partner_slot, 0]
-    mutual = ok & (back == 2 * np.arange(4 * n) + (best % 2))
+    ok = (best >= 0) & ~dead_slots
+    partner = np.where(ok, best // 2, 0)
+    mutual = ok & (cand[partner, 0] == 2 * np.arange(4 * n) + best % 2) & ~dead_slots[partner]
     buddies[mutual] = best[mutual]
-    log.debug("scored %d blocks of %d x %d with %s; %d best-buddy sides", len(blocks), n, n, name, mutual.sum())
+    log.debug("scored %d blocks of %d tiles with %s (%s); %d best-buddy sides",
+              len(unique), n, name, "dense" if dense else "candidates only", mutual.sum())
     return SeamTable(
-        n_tiles=n,
-        orientations=tuple(orientations),
-        blocks=blocks,
-        block_index=block_index,
-        transposed=transposed,
-        candidates=candidates,
-        candidate_costs=cand_costs,
-        second=second,
-        best_buddies=buddies,
-        measure=name,
+        n_tiles=n, orientations=tuple(orientations), dense=bool(dense), blocks=blocks, block_index=block_index,
+        transposed=transposed, candidates=cand, candidate_costs=cand_cost, fallback=fallback, second=second,
+        best_buddies=buddies, dead=dead_slots, measure=name,
     )

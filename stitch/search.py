@@ -163,10 +163,17 @@ class _Problem:
 
     def __init__(self, table, orientations):
         self.n = table.n_tiles
-        self.blocks = np.ascontiguousarray(table.blocks, dtype=np.float32)
-        self.bidx = np.ascontiguousarray(table.block_index, dtype=np.int64)
-        self.btr = np.ascontiguousarray(table.transposed, dtype=np.bool_)
         self.cand = np.ascontiguousarray(table.candidates, dtype=np.int64)
+        blocks = table.blocks if table.dense else np.zeros((1, 1, 1), np.float32)
+        self.tab = (
+            np.ascontiguousarray(blocks, dtype=np.float32),
+            np.ascontiguousarray(table.block_index, dtype=np.int64),
+            np.ascontiguousarray(table.transposed, dtype=np.bool_),
+            self.cand,
+            np.ascontiguousarray(table.candidate_costs, dtype=np.float32),
+            np.ascontiguousarray(table.fallback, dtype=np.float32),
+            bool(table.dense),
+        )
         self.second = np.ascontiguousarray(table.second, dtype=np.float64)
         self.bb = np.ascontiguousarray(table.best_buddies, dtype=np.int64)
         self.allowed = np.zeros(8, np.bool_)
@@ -176,22 +183,22 @@ class _Problem:
         self.fixed = np.zeros(self.n, np.bool_)
 
     def greedy(self, seed, shape, kfree):
-        return K.greedy(seed, 0, shape[0], shape[1], self.n, self.blocks, self.bidx, self.btr,
+        return K.greedy(seed, 0, shape[0], shape[1], self.n, self.tab,
                         self.cand, self.second, self.bb, self.allowed, kfree)
 
     def polish(self, grid, passes, windows=False):
         """Local search in place: swaps and turns, then (optionally) window permutations."""
-        moves = K.improve(grid[0], grid[1], self.n, self.blocks, self.bidx, self.btr, self.cand,
+        moves = K.improve(grid[0], grid[1], self.n, self.tab, self.cand,
                           self.allowed, self.fixed, passes, 4)
         while windows:
             changed = 0
             for h, w in ((2, 3), (3, 2)):
                 if grid[0].shape[0] >= h and grid[0].shape[1] >= w:
-                    changed += K.permute_windows(grid[0], grid[1], h, w, _PERMS6, self.blocks, self.bidx,
-                                                 self.btr, self.fixed, self.bb)
+                    changed += K.permute_windows(grid[0], grid[1], h, w, _PERMS6, self.tab, self.fixed,
+                                                 self.bb)
             if not changed:
                 break
-            moves += changed + K.improve(grid[0], grid[1], self.n, self.blocks, self.bidx, self.btr,
+            moves += changed + K.improve(grid[0], grid[1], self.n, self.tab,
                                          self.cand, self.allowed, self.fixed, passes, 4)
         return moves
 
@@ -201,7 +208,7 @@ class _Problem:
         return int(np.sum((p >= 0) & (p == self.bb)))
 
     def fitness(self, grid):
-        return float(K.fitness(grid[0], grid[1], self.blocks, self.bidx, self.btr))
+        return float(K.fitness(grid[0], grid[1], self.tab))
 
     def normalized_cost(self, grid):
         """Mean of cost / second-best over the seams (comparable across shapes)."""
@@ -349,7 +356,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             at = np.flatnonzero(pa_t == seed)
             seed_o = int(pa_o.flat[at[0]]) if at.size else problem.orientations[0]
             child = K.crossover(parts[ia], parts[ib], int(seed), seed_o, shape[0], shape[1], n,
-                                problem.blocks, problem.bidx, problem.btr, problem.cand, problem.bb,
+                                problem.tab, problem.cand, problem.bb,
                                 problem.allowed, settings.mutation, int(rs))
             new_pop.append(child)
             new_costs.append(problem.fitness(child))

@@ -7,7 +7,8 @@ import pytest
 
 from conftest import skimage_image
 from stitch.layout import allowed_orientations, facing_side
-from stitch.seams import band_scaling, get_measure, mgc, score_seams, ssd
+from stitch.measures import get_measure, mgc, ssd
+from stitch.seams import band_scaling, score_seams
 from stitch.tiles import EdgeStrips, orient, side_strips
 
 
@@ -122,3 +123,95 @@ def test_blank_tiles_score_finite():
     table = score_seams(edges, orientations=allowed_orientations(90, False))
     off_diag = ~np.eye(len(tiles), dtype=bool)
     assert np.isfinite(table.blocks[:, off_diag]).all()
+
+
+def test_mgc_tiny_example_by_hand():
+    """One band, two rows. Gallagher (CVPR 2012): D_LR + D_RL with dummy-regularised variances.
+
+    Left strip: inner (0, 0), boundary (1, 3) -> outward gradients (1, 3), mean 2.
+    Right strip (rows aligned, column 1 = boundary): boundary (4, 4), inner (5, 5)
+    -> outward gradients (-1, -1), mean -1. One band: dummies 0, +1, -1, +1, -1.
+    """
+    left = np.array([[[0, 1]], [[0, 3]]], np.float32).reshape(1, 2, 2, 1)
+    right = np.array([[[5, 4]], [[5, 4]]], np.float32).reshape(1, 2, 2, 1)
+    # Variances over gradients + dummies, with n - 1 = 6 in the denominator:
+    g_l = np.array([1, 3, 0, 1, -1, 1, -1.0])
+    g_r = np.array([-1, -1, 0, 1, -1, 1, -1.0])
+    var_l = ((g_l - 4 / 7) ** 2).sum() / 6  # = 574 / 294
+    var_r = ((g_r + 2 / 7) ** 2).sum() / 6  # = 266 / 294
+    assert var_l == pytest.approx(574 / 294) and var_r == pytest.approx(266 / 294)
+    # D_LR: (y - x - mu_L) = (4 - 1 - 2, 4 - 3 - 2) = (1, -1) -> 2 / var_l
+    # D_RL: (x - y - mu_R) = (1 - 4 + 1, 3 - 4 + 1) = (-2, 0) -> 4 / var_r
+    want = 2 / var_l + 4 / var_r  # = 588/574 + 1176/266 = 5.4454...
+    assert mgc(left, right)[0, 0] == pytest.approx(want, rel=1e-5)
+
+
+def test_prediction_tiny_example_by_hand():
+    """Pomeranz, Shemesh & Ben-Shahar (CVPR 2011), p = 3/10, q = 1/16, predicted from both sides.
+
+    Left: inner (0, 0), boundary (1, 3) predicts the right boundary 2x - x_in = (2, 6).
+    Right: boundary (4, 4), inner (5, 5) predicts the left boundary (3, 3).
+    Errors |2-4|, |6-4|, |3-1|, |3-3| = 2, 2, 2, 0.
+    """
+    from stitch.measures import prediction
+
+    left = np.array([[[0, 1]], [[0, 3]]], np.float32).reshape(1, 2, 2, 1)
+    right = np.array([[[5, 4]], [[5, 4]]], np.float32).reshape(1, 2, 2, 1)
+    want = (3 * 2**0.3 + 0**0.3) ** ((1 / 16) / 0.3)
+    assert prediction(left, right)[0, 0] == pytest.approx(want, rel=1e-6)
+
+
+def test_masked_rows_do_not_count():
+    """A row masked on one side leaves the other rows' score, scaled to full length."""
+    from stitch.measures import prediction
+
+    rng = np.random.default_rng(3)
+    left = rng.normal(0, 40, (2, 6, 2, 3)).astype(np.float32)
+    right = rng.normal(0, 40, (3, 6, 2, 3)).astype(np.float32)
+    lv = np.ones((2, 6), bool)
+    lv[:, 2] = False
+    for fn in (ssd, mgc, prediction):
+        masked = fn(left, right, left_valid=lv, right_valid=np.ones((3, 6), bool))
+        # Garbage in the masked row must not change the score.
+        left2 = left.copy()
+        left2[:, 2] = 1e4
+        again = fn(left2, right, left_valid=lv, right_valid=np.ones((3, 6), bool))
+        np.testing.assert_allclose(again, masked, rtol=1e-3)
+        assert np.isfinite(masked).all()
+
+
+def test_no_overlap_is_nan_for_the_table_to_neutralize():
+    left = np.ones((1, 4, 2, 1), np.float32)
+    lv = np.array([[True, True, False, False]])
+    rv = np.array([[False, False, True, True]])
+    assert np.isnan(ssd(left, left, left_valid=lv, right_valid=rv)[0, 0])
+
+
+@pytest.mark.parametrize("measure", ["prediction", "ssd"])
+def test_blocked_topk_equals_dense(monkeypatch, measure):
+    """Candidates kept chunk by chunk equal the best of the full dense blocks."""
+    import stitch.seams as seams
+
+    tiles = _tiles(9)
+    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
+    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    orients = allowed_orientations(90, True)
+    dense = score_seams(edges, orientations=orients, measure=measure, k=5, dense=True)
+    monkeypatch.setattr(seams, "CHUNK_BYTES", 4 * 9 * 2)  # two rows per chunk
+    sparse = score_seams(edges, orientations=orients, measure=measure, k=5, dense=False)
+    assert not sparse.dense and sparse.blocks.size == 0
+    # The reference: sort every partner of every slot from the dense table.
+    n = len(tiles)
+    slots = np.arange(4 * n)
+    for slot in slots:
+        codes = np.array([2 * other + f for other in slots for f in (0, 1)])
+        costs = dense.cost(np.full(len(codes), slot), codes // 2, codes % 2)
+        order = np.argsort(costs, kind="stable")[:5]
+        np.testing.assert_allclose(np.sort(sparse.candidate_costs[slot]), np.sort(costs[order]), rtol=1e-5)
+    np.testing.assert_array_equal(sparse.best_buddies, dense.best_buddies)
+    # Lookups agree for every listed pair.
+    a = np.repeat(slots, 5)
+    b = sparse.candidates.reshape(-1)
+    ok = b >= 0
+    np.testing.assert_allclose(sparse.cost(a[ok], b[ok] // 2, b[ok] % 2), dense.cost(a[ok], b[ok] // 2, b[ok] % 2),
+                               rtol=1e-5)
