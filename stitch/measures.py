@@ -95,24 +95,26 @@ def ssd(left, right, *, left_valid=None, right_valid=None):
 
 
 def _mgc_stats(strips, w):
-    """Gradient statistics of one side of each tile (Gallagher 2012)."""
-    s = strips.astype(np.float64)
-    n, length, _, bands = s.shape
+    """Gradient statistics of one side of each tile (Gallagher 2012).
+
+    Returns the boundary pixels, the inverse covariance of the outward
+    gradients, ``(edge + mu) S^-1`` and its per-row quadratic form.
+    """
+    n, length, _, bands = strips.shape
+    edge = strips[:, :, 1, :].astype(np.float64)
     w64 = w.astype(np.float64)[..., None]
-    edge = s[:, :, 1, :]
-    grad = (edge - s[:, :, 0, :]) * w64
-    count = np.maximum(w64.sum(axis=1), 1.0)
-    mu = grad.sum(axis=1) / count
+    grad = (edge - strips[:, :, 0, :]) * w64
+    count = w64.sum(axis=1)
+    mu = grad.sum(axis=1) / np.maximum(count, 1.0)
     # Dummy gradients (zero, +-1 on all bands, +-1 on each band) keep the
     # covariance invertible on flat or single-valued edges, as in the paper.
-    eye = np.eye(bands)
-    dummies = np.concatenate([np.zeros((1, bands)), np.ones((1, bands)), -np.ones((1, bands)), eye, -eye])
-    g = np.concatenate([grad, np.broadcast_to(dummies, (n,) + dummies.shape)], axis=1)
-    wg = np.concatenate([w64, np.ones((n, len(dummies), 1))], axis=1)
-    total = wg.sum(axis=1)
-    mean = g.sum(axis=1) / total
-    gc = (g - mean[:, None, :]) * wg
-    cov = (gc.transpose(0, 2, 1) @ gc) / (total[:, :, None] - 1)
+    # They sum to zero and their outer products to 2 (ones + identity), so the
+    # covariance over gradients and dummies follows from sums alone.
+    n_dummy = 3 + 2 * bands
+    total = count + n_dummy
+    mean = grad.sum(axis=1) / total
+    outer = grad.transpose(0, 2, 1) @ grad + 2.0 * (np.ones((bands, bands)) + np.eye(bands))
+    cov = (outer - total[:, :, None] * mean[:, :, None] * mean[:, None, :]) / (total[:, :, None] - 1)
     inv = np.linalg.inv(cov)
     a = edge + mu[:, None, :]
     a_inv = a @ inv

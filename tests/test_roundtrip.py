@@ -67,3 +67,25 @@ def test_same_seed_same_outputs(tmp_path, tiles_dir):
             runs.append((r.outputs["report_placement"].read_bytes(), src.read()))
     assert runs[0][0] == runs[1][0]
     np.testing.assert_array_equal(runs[0][1], runs[1][1])
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_non_square_tiles_with_half_turns(tmp_path):
+    """Non-square tiles may only need half turns (a quarter turn would change their shape)."""
+    src = write_raster(tmp_path / "src.tif", skimage_image("astronaut")[:, :160, :252])
+    cut = cut_raster(src, tmp_path / "tiles", (36, 20), shuffle=True, rotate=180, seed=4, key_path=tmp_path / "k.csv")
+    result = solve(tmp_path / "tiles", tmp_path / "out.tif", options=SolveOptions(rotations=180, seed=4))
+    scores = score_placement(read_placement_csv(result.outputs["report_placement"]), cut.key)
+    assert scores.perfect, scores
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_mirrored_and_turned_tiles(tmp_path):
+    src = write_raster(tmp_path / "src.tif", skimage_image("coffee")[:, 100:268, 200:368])
+    cut = cut_raster(src, tmp_path / "tiles", 28, shuffle=True, rotate=90, mirror=True, seed=6,
+                     key_path=tmp_path / "k.csv")
+    assert cut.key.mirrored.any() and cut.key.rotations.any()
+    opts = SolveOptions(rotations=90, mirrored=True, seed=6)
+    result = solve(tmp_path / "tiles", tmp_path / "out.tif", options=opts)
+    scores = score_placement(read_placement_csv(result.outputs["report_placement"]), cut.key)
+    assert scores.perfect, scores

@@ -97,6 +97,17 @@ def test_table_matches_physically_turned_and_mirrored_tiles(measure):
             np.testing.assert_allclose(table.cost(sa, sb, int((oi >= 4) != (oj >= 4))), want_v, rtol=1e-3, atol=1e-2)
 
 
+def test_ssd_table_symmetric_under_swapping_pair_and_side():
+    tiles = _tiles(6)
+    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
+    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    table = score_seams(edges, orientations=allowed_orientations(90, True), measure="ssd")
+    a, b = np.meshgrid(np.arange(24), np.arange(24), indexing="ij")
+    for f in (0, 1):
+        # Equal up to float32 rounding of the expanded products.
+        np.testing.assert_allclose(table.cost(a, b, f), table.cost(b, a, f), rtol=1e-5, atol=1e-3)
+
+
 def test_candidates_sorted_and_best_buddies_mutual():
     tiles = _tiles(9)
     sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
