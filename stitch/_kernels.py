@@ -71,7 +71,12 @@ def orientation_for(ox, d, t, f):
 
 
 @njit(cache=True)
-def _in_extent(r, c, ext, nrows, ncols):
+def _in_extent(r, c, ext, nrows, ncols, box):
+    """May a tile go to canvas cell (r, c)? The placed block must stay within
+    ``nrows x ncols``, and inside the fixed box when ``box[0] >= 0``."""
+    if box[0] >= 0:
+        if r < box[0] or c < box[1] or r >= box[0] + nrows or c >= box[1] + ncols:
+            return False
     r0 = min(ext[0], r)
     r1 = max(ext[1], r)
     c0 = min(ext[2], c)
@@ -93,17 +98,36 @@ def _set(ct, co, ext, cw, cell, tile, o, used):
 
 
 @njit(cache=True)
-def canvas_to_grid(ct, co, ext, nrows, ncols, cw):
-    """Crop a canvas to an ``nrows x ncols`` grid of tiles and orientations."""
+def canvas_to_grid(ct, co, ext, nrows, ncols, cw, box):
+    """Crop a canvas to an ``nrows x ncols`` grid of tiles and orientations,
+    from the fixed box when there is one, else from the placed block."""
+    r0 = box[0] if box[0] >= 0 else ext[0]
+    c0 = box[1] if box[0] >= 0 else ext[2]
+    ch = ct.shape[0] // cw
     gt = np.full((nrows, ncols), -1, np.int64)
     go = np.zeros((nrows, ncols), np.int64)
     for i in range(nrows):
         for j in range(ncols):
-            cell = (ext[0] + i) * cw + ext[2] + j
-            if ext[0] + i <= ext[1] and ext[2] + j <= ext[3]:
-                gt[i, j] = ct[cell]
-                go[i, j] = co[cell]
+            if r0 + i < ch and c0 + j < cw:
+                gt[i, j] = ct[(r0 + i) * cw + c0 + j]
+                go[i, j] = co[(r0 + i) * cw + c0 + j]
     return gt, go
+
+
+@njit(cache=True)
+def _start(ct, co, ext, cw, used, nrows, ncols, seed_tile, seed_o, pins):
+    """Place the pinned tiles (upright), or else the seed at the canvas centre.
+
+    ``pins`` is ``(tiles, canvas_rows, canvas_cols, box)``. Returns the number
+    of tiles placed.
+    """
+    pin_t, pin_r, pin_c, box = pins
+    if len(pin_t) == 0:
+        _set(ct, co, ext, cw, nrows * cw + ncols, seed_tile, seed_o, used)
+        return 1
+    for q in range(len(pin_t)):
+        _set(ct, co, ext, cw, pin_r[q] * cw + pin_c[q], pin_t[q], 0, used)
+    return len(pin_t)
 
 
 @njit(cache=True)
@@ -198,19 +222,20 @@ def _best_for_cell(ct, co, cw, ch, cell, used, n, tab, cand, second, bb, allowed
 
 
 @njit(cache=True)
-def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, kfree):
+def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, kfree, pins):
     """Greedy best-buddy placement (after Paikin & Tal, CVPR 2015).
 
     Repeatedly fills the free cell, next to placed tiles, whose best tile
     scores highest: best buddies of all placed neighbours first, then by the
-    mean normalised seam confidence. Returns ``(tiles, orientations)`` grids.
+    mean normalised seam confidence. Starts from the pinned tiles, or from the
+    seed. Returns ``(tiles, orientations)`` grids.
     """
     ch = 2 * nrows + 1
     cw = 2 * ncols + 1
     ct = np.full(ch * cw, -1, np.int64)
     co = np.zeros(ch * cw, np.int64)
     used = np.zeros(n, np.bool_)
-    ext = np.array([nrows, nrows, ncols, ncols], np.int64)
+    ext = np.array([ch, -1, cw, -1], np.int64)
     in_fr = np.zeros(ch * cw, np.bool_)
     fr = np.empty(ch * cw, np.int64)
     nfr = 0
@@ -218,19 +243,24 @@ def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, k
     c_o = np.zeros(ch * cw, np.int64)
     c_s = np.full(ch * cw, -np.inf)
     c_ok = np.zeros(ch * cw, np.bool_)
-    cell = nrows * cw + ncols
-    _set(ct, co, ext, cw, cell, seed_tile, seed_o, used)
-    placed = 1
+    placed = _start(ct, co, ext, cw, used, nrows, ncols, seed_tile, seed_o, pins)
+    new_cells = np.empty(max(placed, 1), np.int64)
+    k = 0
+    for cell in range(ch * cw):
+        if ct[cell] >= 0:
+            new_cells[k] = cell
+            k += 1
     while True:
-        for d in range(4):
-            nb = _step(cell, d, cw, ch)
-            if nb < 0 or ct[nb] >= 0:
-                continue
-            c_ok[nb] = False
-            if not in_fr[nb]:
-                in_fr[nb] = True
-                fr[nfr] = nb
-                nfr += 1
+        for q in range(k):
+            for d in range(4):
+                nb = _step(new_cells[q], d, cw, ch)
+                if nb < 0 or ct[nb] >= 0:
+                    continue
+                c_ok[nb] = False
+                if not in_fr[nb]:
+                    in_fr[nb] = True
+                    fr[nfr] = nb
+                    nfr += 1
         if placed >= n:
             break
         best_s = -np.inf
@@ -238,17 +268,16 @@ def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, k
         i = 0
         while i < nfr:
             f = fr[i]
-            if ct[f] >= 0 or not _in_extent(f // cw, f % cw, ext, nrows, ncols):
+            if ct[f] >= 0 or not _in_extent(f // cw, f % cw, ext, nrows, ncols, pins[3]):
                 in_fr[f] = False
                 fr[i] = fr[nfr - 1]
                 nfr -= 1
                 continue
             if not c_ok[f] or (c_t[f] >= 0 and used[c_t[f]]):
-                y, o, s = _best_for_cell(ct, co, cw, ch, f, used, n, tab, cand, second, bb,
-                                         allowed, kfree)
+                y, o, sc = _best_for_cell(ct, co, cw, ch, f, used, n, tab, cand, second, bb, allowed, kfree)
                 c_t[f] = y
                 c_o[f] = o
-                c_s[f] = s
+                c_s[f] = sc
                 c_ok[f] = True
             if c_t[f] >= 0 and (best_cell < 0 or c_s[f] > best_s):
                 best_s = c_s[f]
@@ -256,10 +285,11 @@ def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, k
             i += 1
         if best_cell < 0:
             break
-        cell = best_cell
-        _set(ct, co, ext, cw, cell, c_t[cell], c_o[cell], used)
+        _set(ct, co, ext, cw, best_cell, c_t[best_cell], c_o[best_cell], used)
         placed += 1
-    return canvas_to_grid(ct, co, ext, nrows, ncols, cw)
+        new_cells[0] = best_cell
+        k = 1
+    return canvas_to_grid(ct, co, ext, nrows, ncols, cw, pins[3])
 
 
 @njit(cache=True)
@@ -333,7 +363,7 @@ def _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3):
 
 @njit(cache=True)
 def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed,
-              mutation, rseed):
+              mutation, rseed, pins):
     """Grow a child from two parents (Sholomon, David & Netanyahu, CVPR 2013).
 
     From a seed tile the child grows one seam at a time: first seams both
@@ -348,6 +378,11 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed
         Partner codes of the parents (:func:`partners`).
     rseed : int
         Seeds numba's generator, so a child depends only on its inputs.
+    pins : tuple
+        Pinned tiles and fixed box (see :func:`_start`); they never move.
+
+    With empty parents (all -1) and ``mutation`` 1 it makes a random
+    placement that respects the pins and the grid size.
     """
     np.random.seed(rseed)
     ch = 2 * nrows + 1
@@ -355,7 +390,7 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed
     ct = np.full(ch * cw, -1, np.int64)
     co = np.zeros(ch * cw, np.int64)
     used = np.zeros(n, np.bool_)
-    ext = np.array([nrows, nrows, ncols, ncols], np.int64)
+    ext = np.array([ch, -1, cw, -1], np.int64)
     s1 = np.empty((4 * n + 4, 3), np.int64)
     s2 = np.empty((4 * n + 4, 3), np.int64)
     s3 = np.empty((4 * n + 4, 2), np.int64)
@@ -368,10 +403,10 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed
         if allowed[o]:
             allowed_list[n_allowed] = o
             n_allowed += 1
-    cell = nrows * cw + ncols
-    _set(ct, co, ext, cw, cell, seed_tile, seed_o, used)
-    n1, n2, n3 = _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3)
-    placed = 1
+    placed = _start(ct, co, ext, cw, used, nrows, ncols, seed_tile, seed_o, pins)
+    for cell in range(ch * cw):
+        if ct[cell] >= 0:
+            n1, n2, n3 = _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3)
     while placed < n:
         tgt = -1
         ty = -1
@@ -390,7 +425,7 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed
                     n2 -= 1
                     src, d, code = s2[n2, 0], s2[n2, 1], s2[n2, 2]
                 cell2 = src + DROW[d] * cw + DCOL[d]
-                if ct[cell2] >= 0 or not _in_extent(cell2 // cw, cell2 % cw, ext, nrows, ncols):
+                if ct[cell2] >= 0 or not _in_extent(cell2 // cw, cell2 % cw, ext, nrows, ncols, pins[3]):
                     continue
                 y = (code // 2) // 4
                 if used[y]:
@@ -411,7 +446,7 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed
             s3[q, 1] = s3[n3 - 1, 1]
             n3 -= 1
             cell2 = src + DROW[d] * cw + DCOL[d]
-            if ct[cell2] >= 0 or not _in_extent(cell2 // cw, cell2 % cw, ext, nrows, ncols):
+            if ct[cell2] >= 0 or not _in_extent(cell2 // cw, cell2 % cw, ext, nrows, ncols, pins[3]):
                 continue
             x = ct[src]
             ox = co[src]
@@ -456,7 +491,7 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed
         _set(ct, co, ext, cw, tgt, ty, to, used)
         placed += 1
         n1, n2, n3 = _push(ct, co, cw, ch, tgt, pa, pb, bb, s1, n1, s2, n2, s3, n3)
-    return canvas_to_grid(ct, co, ext, nrows, ncols, cw)
+    return canvas_to_grid(ct, co, ext, nrows, ncols, cw, pins[3])
 
 
 @njit(cache=True)

@@ -81,6 +81,18 @@ def _parse_grid(value):
     return r, c
 
 
+def _parse_pin(value):
+    name, sep, cell = value.rpartition("=")
+    try:
+        row, col = (int(v) for v in cell.split(","))
+    except ValueError:
+        raise typer.BadParameter(f"expected NAME=ROW,COL such as tile_0007.tif=0,3, not {value!r}",
+                                 param_hint="--pin") from None
+    if not sep or not name or row < 0 or col < 0:
+        raise typer.BadParameter(f"expected NAME=ROW,COL with ROW, COL >= 0, not {value!r}", param_hint="--pin")
+    return name, row, col
+
+
 def _check_choice(value, choices, name):
     if value not in choices:
         raise typer.BadParameter(f"must be one of {', '.join(map(str, choices))}, not {value}", param_hint=name)
@@ -126,6 +138,8 @@ def solve(
     pixel_size: Annotated[Optional[float], typer.Option(help="Ground size of a pixel (with --origin).")] = None,
     pixel_size_y: Annotated[Optional[float], typer.Option(help="Pixel height when it differs from --pixel-size.")] = None,
     crs: Annotated[Optional[str], typer.Option(help="CRS of --bounds/--origin, e.g. EPSG:32633.")] = None,
+    pin: Annotated[Optional[list[str]], typer.Option(
+        help="Known cell of a tile, NAME=ROW,COL (row 0 at the top); repeat for more. Pinned tiles never move.")] = None,
     report: Annotated[Optional[Path], typer.Option(help="Report folder (default: OUT's stem + _report).")] = None,
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
     seed: Seed = 0,
@@ -143,10 +157,11 @@ def solve(
     _setup_logging(verbose, quiet)
     _check_choice(rotations, (0, 90, 180), "--rotations")
     shape = _parse_grid(grid)
+    pins = tuple(_parse_pin(p) for p in pin or ())
     with _errors(verbose, quiet):
         size = None if pixel_size is None else (pixel_size, pixel_size_y or pixel_size)
         options = SolveOptions(
-            grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive,
+            grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive, pins=pins,
             search=SearchSettings(strategy=search, population=population, generations=generations,
                                   time_limit=time_limit),
             georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs),
@@ -235,10 +250,10 @@ def score(
 def plugins():
     """List the seam measures and search strategies installed (built in and by plugins)."""
     from .measures import available_measures
-    from .search import SEARCHES
+    from .search import available_searches
 
     typer.echo(f"seam measures (--seam): {', '.join(available_measures())}")
-    typer.echo(f"search strategies (--search): {', '.join(SEARCHES)}")
+    typer.echo(f"search strategies (--search): {', '.join(available_searches())}")
 
 
 def main():

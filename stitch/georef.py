@@ -30,6 +30,7 @@ from .errors import GeoreferenceError, OptionError
 __all__ = [
     "Georeference",
     "GeorefSpec",
+    "anchor_cells",
     "from_anchors",
     "from_bounds",
     "from_origin",
@@ -204,6 +205,59 @@ def from_anchors(placement, tileset):
             )
     names = ", ".join(tileset.names[i] for i in anchors[:3]) + (" ..." if len(anchors) > 3 else "")
     return Georeference(ref, ref_crs, f"anchor tile{'s' if len(anchors) > 1 else ''} {names}")
+
+
+def anchor_cells(tileset):
+    """Relative cells of the tiles that kept georeferencing, checked for agreement.
+
+    Each anchor's upper-left corner, expressed in pixels of the first anchor,
+    must fall on the tile grid (whole multiples of the tile size, within
+    :data:`ANCHOR_TOLERANCE_PX`), with the same CRS and pixel size.
+
+    Returns
+    -------
+    list of (index, row_offset, col_offset)
+        Offsets in whole tiles from the first anchor; empty without anchors.
+
+    Raises
+    ------
+    GeoreferenceError
+        Anchors in different CRSs, with different pixel sizes, or off-grid.
+    """
+    anchors = [i for i, g in enumerate(tileset.georefs) if g is not None]
+    if not anchors:
+        return []
+    first = tileset.georefs[anchors[0]]
+    name0 = tileset.names[anchors[0]]
+    out = [(anchors[0], 0, 0)]
+    for i in anchors[1:]:
+        g = tileset.georefs[i]
+        name = tileset.names[i]
+        if (g.crs is None) != (first.crs is None) or (g.crs is not None and g.crs != first.crs):
+            raise GeoreferenceError(
+                f"anchor tiles {name0!r} and {name!r} are in different CRSs ({first.crs} vs {g.crs}); "
+                "reproject one or remove its georeferencing"
+            )
+        scale = np.array([[g.transform.a, g.transform.b], [g.transform.d, g.transform.e]])
+        scale0 = np.array([[first.transform.a, first.transform.b], [first.transform.d, first.transform.e]])
+        if not np.allclose(scale, scale0, rtol=1e-6, atol=0):
+            raise GeoreferenceError(
+                f"anchor tiles {name0!r} and {name!r} have different pixel sizes "
+                f"({first.transform.a:g} x {first.transform.e:g} vs {g.transform.a:g} x {g.transform.e:g}); "
+                "resample one or remove its georeferencing"
+            )
+        col, row = ~first.transform @ (g.transform.c, g.transform.f)
+        tc, tr = col / tileset.width, row / tileset.height
+        off_px = float(np.hypot((tc - round(tc)) * tileset.width, (tr - round(tr)) * tileset.height))
+        if off_px > ANCHOR_TOLERANCE_PX:
+            dx, dy = (np.array(g.transform @ (0, 0)) - np.array(first.transform @ (round(tc) * tileset.width,
+                                                                                  round(tr) * tileset.height)))
+            raise GeoreferenceError(
+                f"anchor tiles {name0!r} and {name!r} are not on one tile grid: off by {off_px:.2f} px "
+                f"({float(np.hypot(dx, dy)):.3f} map units); fix or remove one's georeferencing"
+            )
+        out.append((i, int(round(tr)), int(round(tc))))
+    return out
 
 
 def world_file_path(raster_path):

@@ -17,11 +17,11 @@ import numpy as np
 
 from .errors import NotGeoreferencedWarning, OptionError, TileSetError
 from .files import check_outputs
-from .georef import PIXEL_SPACE, GeorefSpec, from_anchors, from_bounds, from_origin, world_file_path
+from .georef import PIXEL_SPACE, GeorefSpec, anchor_cells, from_anchors, from_bounds, from_origin, world_file_path
 from .layout import Placement, allowed_orientations, normalize_frame
 from .mosaic import write_mosaic
 from .report import check_report, report_paths, write_report
-from .search import SearchSettings, search_placement, tile_confidence
+from .search import Pins, SearchSettings, search_placement, tile_confidence
 from .seams import DEFAULT_MEASURE, score_seams
 from .tiles import read_tileset
 
@@ -55,6 +55,9 @@ class SolveOptions:
         Georeferencing given by the user (overrides anchor tiles).
     confidence_threshold : float
         Tiles below it are flagged for review.
+    pins : tuple of (name, row, col)
+        Tiles whose grid cell is known; they never move. Without pins, tiles
+        that kept georeferencing are pinned relative to each other.
     """
 
     grid: tuple[int, int] | None = None
@@ -67,6 +70,7 @@ class SolveOptions:
     recursive: bool = False
     georef: GeorefSpec = field(default_factory=GeorefSpec)
     confidence_threshold: float = 0.5
+    pins: tuple = ()
 
     def __post_init__(self):
         if self.grid is not None and (len(self.grid) != 2 or min(self.grid) < 1):
@@ -75,6 +79,11 @@ class SolveOptions:
             raise OptionError("the confidence threshold must lie in [0, 1]")
         if self.candidates < 2:
             raise OptionError("keep at least 2 candidates per side")
+        for pin in self.pins:
+            if len(pin) != 3 or int(pin[1]) < 0 or int(pin[2]) < 0:
+                raise OptionError(f"--pin must be NAME=ROW,COL with ROW, COL >= 0, got {pin!r}")
+            if self.grid is not None and (int(pin[1]) >= self.grid[0] or int(pin[2]) >= self.grid[1]):
+                raise OptionError(f"--pin {pin[0]}={pin[1]},{pin[2]} lies outside --grid {self.grid[0]}x{self.grid[1]}")
 
     def as_dict(self):
         d = asdict(self)
@@ -126,6 +135,28 @@ def default_report_dir(output):
     return output.with_name(output.stem + "_report")
 
 
+def _pins(tileset, options):
+    """Pins from --pin (absolute cells) or from anchor tiles (relative cells)."""
+    if options.pins:
+        index = {name: i for i, name in enumerate(tileset.names)}
+        tiles, rows, cols, cells = [], [], [], set()
+        for name, row, col in options.pins:
+            if name not in index:
+                raise OptionError(f"--pin names tile {name!r}, which is not in {str(tileset.folder)!r}")
+            if (int(row), int(col)) in cells or index[name] in tiles:
+                raise OptionError(f"--pin {name}={row},{col} repeats a tile or a cell")
+            cells.add((int(row), int(col)))
+            tiles.append(index[name])
+            rows.append(int(row))
+            cols.append(int(col))
+        return Pins(tuple(tiles), tuple(rows), tuple(cols), absolute=True)
+    cells = anchor_cells(tileset)
+    if not cells:
+        return Pins()
+    t, r, c = zip(*cells)
+    return Pins(t, r, c, absolute=False)
+
+
 def place_tiles(tileset, options=None, *, progress=None):
     """Score seams and search a placement; no files are written.
 
@@ -141,12 +172,16 @@ def place_tiles(tileset, options=None, *, progress=None):
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
     table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates,
                         blank=tileset.blank)
+    pins = _pins(tileset, options)
     result = search_placement(table, shape=options.grid, orientations=orientations, settings=options.search,
-                              rng=options.seed, progress=progress)
+                              rng=options.seed, progress=progress, pins=pins, holes=options.grid is None)
     raw = Placement.from_grid(tileset.names, result.tiles, result.orientations)
-    turns = {0: (0,), 180: (0, 2), 90: (0, 1, 2, 3)}[options.rotations]
-    anchors = [i for i, g in enumerate(tileset.georefs) if g is not None]
-    placement = normalize_frame(raw, turns=turns, mirror=options.mirrored, fit=options.grid, anchors=anchors)
+    if pins.absolute:
+        placement = raw  # the pins fix the frame and the cells
+    else:
+        turns = {0: (0,), 180: (0, 2), 90: (0, 1, 2, 3)}[options.rotations]
+        anchors = [i for i, g in enumerate(tileset.georefs) if g is not None]
+        placement = normalize_frame(raw, turns=turns, mirror=options.mirrored, fit=options.grid, anchors=anchors)
     conf = tile_confidence(placement, table, result.agreement)
     conf[tileset.blank] = 0.0
     return placement.with_confidence(conf), result, table

@@ -25,6 +25,7 @@ import logging
 import math
 import time
 from dataclasses import dataclass, field
+from importlib.metadata import entry_points
 
 import numpy as np
 
@@ -34,8 +35,11 @@ from .errors import OptionError
 __all__ = [
     "SEARCHES",
     "SearchResult",
+    "Pins",
     "SearchSettings",
+    "available_searches",
     "candidate_shapes",
+    "get_search",
     "search_placement",
     "tile_confidence",
 ]
@@ -88,8 +92,6 @@ class SearchSettings:
     polish_passes: int = 3
 
     def __post_init__(self):
-        if self.strategy not in SEARCHES:
-            raise OptionError(f"search must be one of {', '.join(SEARCHES)}, not {self.strategy!r}")
         if self.population < 0 or self.generations < 0 or self.patience < 1:
             raise OptionError("population and generations must be >= 0 and patience >= 1")
         if self.time_limit is not None and self.time_limit <= 0:
@@ -158,10 +160,59 @@ def candidate_shapes(n_tiles, *, transposes=True):
 _PERMS6 = np.array(list(itertools.permutations(range(6))), dtype=np.int64)
 
 
+@dataclass(frozen=True)
+class Pins:
+    """Tiles whose cell is known; they never move.
+
+    Attributes
+    ----------
+    tiles : tuple of int
+        Tile indices.
+    rows, cols : tuple of int
+        Grid cells when ``absolute``, else offsets from the first pin (tiles
+        that kept georeferencing know where they lie relative to each other,
+        not in which cell of a grid not yet known).
+    absolute : bool
+    """
+
+    tiles: tuple = ()
+    rows: tuple = ()
+    cols: tuple = ()
+    absolute: bool = False
+
+    def __bool__(self):
+        return len(self.tiles) > 0
+
+    def span(self):
+        """Rows and columns the pins cover (absolute: from cell 0)."""
+        if not self:
+            return 0, 0
+        if self.absolute:
+            return max(self.rows) + 1, max(self.cols) + 1
+        return max(self.rows) - min(self.rows) + 1, max(self.cols) - min(self.cols) + 1
+
+    def fits(self, shape):
+        r, c = self.span()
+        return r <= shape[0] and c <= shape[1]
+
+    def on_canvas(self, shape):
+        """``(tiles, canvas_rows, canvas_cols, box)`` for the kernels."""
+        rows, cols = shape
+        t = np.asarray(self.tiles, np.int64)
+        if not self:
+            return (t, t.copy(), t.copy(), np.array([-1, -1], np.int64))
+        if self.absolute:
+            return (t, 1 + np.asarray(self.rows, np.int64), 1 + np.asarray(self.cols, np.int64),
+                    np.array([1, 1], np.int64))
+        r = np.asarray(self.rows, np.int64) - self.rows[0] + rows
+        c = np.asarray(self.cols, np.int64) - self.cols[0] + cols
+        return (t, r, c, np.array([-1, -1], np.int64))
+
+
 class _Problem:
     """Arrays the kernels need, gathered once."""
 
-    def __init__(self, table, orientations):
+    def __init__(self, table, orientations, pins=Pins()):
         self.n = table.n_tiles
         self.cand = np.ascontiguousarray(table.candidates, dtype=np.int64)
         blocks = table.blocks if table.dense else np.zeros((1, 1, 1), np.float32)
@@ -180,26 +231,37 @@ class _Problem:
         self.allowed[list(orientations)] = True
         self.orientations = tuple(orientations)
         self.table = table
+        self.pins = pins
         self.fixed = np.zeros(self.n, np.bool_)
+        self.fixed[list(pins.tiles)] = True
+        self._no_parent = np.full(4 * self.n, -1, np.int64)
 
     def greedy(self, seed, shape, kfree):
-        return K.greedy(seed, 0, shape[0], shape[1], self.n, self.tab,
-                        self.cand, self.second, self.bb, self.allowed, kfree)
+        return K.greedy(seed, 0, shape[0], shape[1], self.n, self.tab, self.cand, self.second, self.bb,
+                        self.allowed, kfree, self.pins.on_canvas(shape))
+
+    def crossover(self, pa, pb, seed, seed_o, shape, mutation, rseed):
+        return K.crossover(pa, pb, seed, seed_o, shape[0], shape[1], self.n, self.tab, self.cand, self.bb,
+                           self.allowed, mutation, rseed, self.pins.on_canvas(shape))
+
+    def random(self, shape, rng):
+        """A random placement respecting pins and grid size (crossover of nothing)."""
+        seed = int(rng.integers(self.n))
+        return self.crossover(self._no_parent, self._no_parent, seed, self.orientations[0], shape, 1.0,
+                              int(rng.integers(2**31 - 1)))
 
     def polish(self, grid, passes, windows=False):
         """Local search in place: swaps and turns, then (optionally) window permutations."""
-        moves = K.improve(grid[0], grid[1], self.n, self.tab, self.cand,
-                          self.allowed, self.fixed, passes, 4)
+        moves = K.improve(grid[0], grid[1], self.n, self.tab, self.cand, self.allowed, self.fixed, passes, 4)
         while windows:
             changed = 0
             for h, w in ((2, 3), (3, 2)):
                 if grid[0].shape[0] >= h and grid[0].shape[1] >= w:
-                    changed += K.permute_windows(grid[0], grid[1], h, w, _PERMS6, self.tab, self.fixed,
-                                                 self.bb)
+                    changed += K.permute_windows(grid[0], grid[1], h, w, _PERMS6, self.tab, self.fixed, self.bb)
             if not changed:
                 break
-            moves += changed + K.improve(grid[0], grid[1], self.n, self.tab,
-                                         self.cand, self.allowed, self.fixed, passes, 4)
+            moves += changed + K.improve(grid[0], grid[1], self.n, self.tab, self.cand, self.allowed, self.fixed,
+                                         passes, 4)
         return moves
 
     def buddy_seams(self, grid):
@@ -241,22 +303,47 @@ def _seed_ranking(problem):
     return np.lexsort((-margin, -has_bb))
 
 
-def _random_grid(rng, shape, n, orientations):
-    cells = shape[0] * shape[1]
-    gt = np.full(cells, -1, np.int64)
-    pos = rng.permutation(cells)[:n]
-    gt[pos] = rng.permutation(n)
-    go = np.where(gt >= 0, rng.choice(np.asarray(orientations), size=cells), 0).astype(np.int64)
-    return gt.reshape(shape), go.reshape(shape)
-
-
 def _default_sizes(n):
     population = int(min(200, max(30, 8 * math.sqrt(n))))
     generations = int(min(300, 40 + n // 4))
     return population, generations
 
 
-def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng=None, progress=None):
+def _free_shape(problem, seed, kfree):
+    """Grid read off a greedy placement with room to grow any way (holes allowed)."""
+    side = 2 * math.ceil(math.sqrt(problem.n)) + 2
+    gt, _ = problem.greedy(seed, (side, side), kfree)
+    rows = np.flatnonzero((gt >= 0).any(axis=1))
+    cols = np.flatnonzero((gt >= 0).any(axis=0))
+    return int(rows[-1] - rows[0] + 1), int(cols[-1] - cols[0] + 1)
+
+
+def _shapes_to_try(problem, shape, orientations, seed, kfree, holes):
+    n = problem.n
+    quarter = bool(set(orientations) & {1, 3, 5, 7})
+    if shape is not None:
+        rows, cols = shape
+        if rows * cols < n:
+            raise OptionError(f"grid {rows}x{cols} holds {rows * cols} tiles but there are {n}; give a larger --grid")
+        shapes = [tuple(shape)]
+        if quarter and rows != cols and not problem.pins.absolute:
+            shapes.append((cols, rows))  # the seed may sit turned; turned back later
+    else:
+        shapes = candidate_shapes(n, transposes=True)
+        if holes:
+            free = _free_shape(problem, seed, kfree)
+            if free[0] * free[1] >= n and free not in shapes:
+                shapes.append(free)
+    fitting = [s for s in shapes if problem.pins.fits(s)]
+    if not fitting:
+        r, c = problem.pins.span()
+        raise OptionError(f"pinned tiles span {r}x{c} cells, more than any grid tried "
+                          f"({', '.join(f'{a}x{b}' for a, b in shapes)}); give --grid")
+    return fitting
+
+
+def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng=None, progress=None, pins=None,
+                     holes=False):
     """Find a low-cost placement of every tile of a seam table.
 
     Parameters
@@ -271,44 +358,44 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
         Source of every random choice.
     progress : callable, optional
         Called as ``progress(generation, best_cost, mean_cost)``.
+    pins : Pins, optional
+        Tiles that never move.
+    holes : bool, optional
+        When inferring the grid, also consider grids with more cells than
+        tiles (some tiles missing).
 
     Returns
     -------
     SearchResult
     """
     settings = settings or SearchSettings()
+    strategy = get_search(settings.strategy)
+    if strategy not in _BUILTIN_SEARCHES.values():
+        return strategy(table, shape=shape, orientations=orientations, settings=settings,
+                        rng=np.random.default_rng(rng), progress=progress, pins=pins or Pins())
     rng = np.random.default_rng(rng)
-    problem = _Problem(table, orientations)
+    problem = _Problem(table, orientations, pins or Pins())
     n = problem.n
-    if shape is not None:
-        rows, cols = shape
-        if rows * cols < n:
-            raise OptionError(f"grid {rows}x{cols} holds {rows * cols} tiles but there are {n}; give a larger --grid")
-        shapes = [tuple(shape)]
-        if len(set(orientations) & {1, 3, 5, 7}) and rows != cols:
-            shapes.append((cols, rows))  # the seed may sit turned; turned back later
-    else:
-        shapes = candidate_shapes(n, transposes=True)
     ranking = _seed_ranking(problem)
     seed0 = int(ranking[0])
+    shapes = _shapes_to_try(problem, shape, orientations, seed0, settings.candidates_free, holes)
 
     # A wrong shape forces seams the tiles do not want: the right one keeps
-    # the most best-buddy pairs, and, among equals, the cheapest seams.
+    # the most best-buddy pairs; among equals, the one with fewer cells, then
+    # the cheapest seams.
     shape_scores = {}
     best_shape, best_greedy, best_key = None, None, None
     for s in shapes:
         grid = problem.greedy(seed0, s, settings.candidates_free)
         problem.polish(grid, settings.polish_passes)
-        key = (-problem.buddy_seams(grid), problem.normalized_cost(grid))
-        shape_scores[s] = {"buddy_pairs": -key[0], "mean_normalized_cost": key[1]}
-        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], -key[0], key[1])
+        key = (-problem.buddy_seams(grid), s[0] * s[1], problem.normalized_cost(grid))
+        shape_scores[s] = {"buddy_pairs": -key[0], "mean_normalized_cost": key[2]}
+        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], -key[0], key[2])
         if best_key is None or key < best_key:
             best_shape, best_greedy, best_key = s, grid, key
-    greedy_cost = problem.fitness(best_greedy)
-
     if settings.strategy == "greedy" or n < 3:
         return SearchResult(
-            tiles=best_greedy[0], orientations=best_greedy[1], cost=greedy_cost, strategy="greedy",
+            tiles=best_greedy[0], orientations=best_greedy[1], cost=problem.fitness(best_greedy), strategy="greedy",
             shape_scores=shape_scores, agreement=np.ones(4 * n),
         )
     return _evolve(problem, best_shape, best_greedy, ranking, settings, rng, progress, shape_scores)
@@ -323,13 +410,14 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     deadline = None if settings.time_limit is None else time.perf_counter() + settings.time_limit
 
     population = [first]
-    n_greedy = max(1, int(round(pop_size * settings.greedy_share)))
-    seeds = list(ranking[1: min(n, 4 * n_greedy)])
-    rng.shuffle(seeds)
-    for seed in seeds[: n_greedy - 1]:
-        population.append(problem.greedy(int(seed), shape, settings.candidates_free))
+    if not problem.pins:  # with pins every greedy run starts alike
+        n_greedy = max(1, int(round(pop_size * settings.greedy_share)))
+        seeds = list(ranking[1: min(n, 4 * n_greedy)])
+        rng.shuffle(seeds)
+        for seed in seeds[: n_greedy - 1]:
+            population.append(problem.greedy(int(seed), shape, settings.candidates_free))
     while len(population) < pop_size:
-        population.append(_random_grid(rng, shape, n, problem.orientations))
+        population.append(problem.random(shape, rng))
     for i, g in enumerate(population):
         problem.polish(g, settings.polish_passes, windows=i == 0)
     costs = np.array([problem.fitness(g) for g in population])
@@ -344,7 +432,6 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             break
         order = np.argsort(costs, kind="stable")
         new_pop = [population[i] for i in order[:elite]]
-        new_parts = [parts[i] for i in order[:elite]]
         new_costs = [costs[i] for i in order[:elite]]
         # Tournament selection of size 3.
         picks = rng.integers(0, pop_size, size=(pop_size - elite, 2, 3))
@@ -355,9 +442,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             pa_t, pa_o = population[ia]
             at = np.flatnonzero(pa_t == seed)
             seed_o = int(pa_o.flat[at[0]]) if at.size else problem.orientations[0]
-            child = K.crossover(parts[ia], parts[ib], int(seed), seed_o, shape[0], shape[1], n,
-                                problem.tab, problem.cand, problem.bb,
-                                problem.allowed, settings.mutation, int(rs))
+            child = problem.crossover(parts[ia], parts[ib], int(seed), seed_o, shape, settings.mutation, int(rs))
             new_pop.append(child)
             new_costs.append(problem.fitness(child))
         # Memetic step: polish the most promising children with local search
@@ -366,7 +451,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         for rank, c in enumerate(children):
             problem.polish(new_pop[c], settings.polish_passes, windows=rank == 0)
             new_costs[c] = problem.fitness(new_pop[c])
-        new_parts += [K.partners(g[0], g[1], n) for g in new_pop[elite:]]
+        new_parts = [parts[i] for i in order[:elite]] + [K.partners(g[0], g[1], n) for g in new_pop[elite:]]
         population, parts, costs = new_pop, new_parts, np.array(new_costs)
         generation += 1
         gen_best = float(costs.min())
@@ -391,6 +476,33 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         best_history=tuple(best_hist), mean_history=tuple(mean_hist), generations=generation,
         strategy="evolution", shape_scores=shape_scores, agreement=agreement,
     )
+
+
+#: Entry-point group under which other packages register search strategies.
+SEARCH_ENTRY_POINT_GROUP = "stitch.searches"
+
+_BUILTIN_SEARCHES = {"evolution": search_placement, "greedy": search_placement}
+
+
+def available_searches():
+    """Names of built-in and installed search strategies, sorted."""
+    names = set(_BUILTIN_SEARCHES)
+    names.update(ep.name for ep in entry_points(group=SEARCH_ENTRY_POINT_GROUP))
+    return sorted(names)
+
+
+def get_search(name):
+    """The search registered under ``name``.
+
+    A plugin search is called as ``search(table, *, shape, orientations,
+    settings, rng, progress, pins)`` and returns a :class:`SearchResult`.
+    """
+    if name in _BUILTIN_SEARCHES:
+        return _BUILTIN_SEARCHES[name]
+    for ep in entry_points(group=SEARCH_ENTRY_POINT_GROUP):
+        if ep.name == name:
+            return ep.load()
+    raise OptionError(f"--search {name!r} is unknown; choose one of {', '.join(available_searches())}")
 
 
 def tile_confidence(placement, table, agreement=None):

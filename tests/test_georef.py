@@ -118,5 +118,17 @@ def test_anchors_that_disagree_are_refused(tmp_path, utm_raster):
     a = out / cut.georeferenced[0]
     with rasterio.open(a, "r+") as dst:
         dst.transform = dst.transform @ Affine.translation(7, 0)  # 7 px off
-    with pytest.raises(GeoreferenceError, match="disagree"):
+    with pytest.raises(GeoreferenceError, match=r"not on one tile grid: off by 7.00 px \(3.500 map units\)") as err:
+        solve(out, tmp_path / "out.tif")
+    assert all(name in str(err.value) for name in cut.georeferenced)
+
+
+def test_anchors_in_different_crs_are_refused(tmp_path, utm_raster):
+    from stitch.puzzles import cut_raster
+
+    out = tmp_path / "tiles"
+    cut = cut_raster(utm_raster, out, 28, shuffle=True, strip_georef=True, keep_georef=2, seed=3)
+    with rasterio.open(out / cut.georeferenced[1], "r+") as dst:
+        dst.crs = "EPSG:32631"
+    with pytest.raises(GeoreferenceError, match="different CRSs"):
         solve(out, tmp_path / "out.tif")
