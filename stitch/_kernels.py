@@ -318,8 +318,13 @@ def partners(gt, go, n):
 
 
 @njit(cache=True)
-def fitness(gt, go, tab):
-    """Total seam cost of a grid: the search minimises it."""
+def fitness(gt, go, tab, bonus):
+    """What the search minimises: the sum over seams of ``cost - bonus``.
+
+    With every cell filled the seam count is fixed and this is the total seam
+    cost shifted by a constant. With holes, ``bonus`` (a typical cost of a
+    plausible seam) keeps the search from scattering holes to drop seams.
+    """
     nrows, ncols = gt.shape
     total = 0.0
     for i in range(nrows):
@@ -328,9 +333,9 @@ def fitness(gt, go, tab):
             if x < 0:
                 continue
             if j + 1 < ncols and gt[i, j + 1] >= 0:
-                total += seam_cost(tab, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1])
+                total += seam_cost(tab, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1]) - bonus
             if i + 1 < nrows and gt[i + 1, j] >= 0:
-                total += seam_cost(tab, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j])
+                total += seam_cost(tab, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j]) - bonus
     return total
 
 

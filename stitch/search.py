@@ -109,7 +109,9 @@ class SearchResult:
     cost : float
         Total seam cost of the best placement.
     best_history, mean_history : tuple of float
-        Best and mean population cost per generation (empty for greedy).
+        Best and mean search objective per generation (empty for greedy):
+        the total seam cost less a constant per seam (see
+        :func:`stitch._kernels.fitness`).
     generations : int
     strategy : str
     shape_scores : dict
@@ -235,6 +237,8 @@ class _Problem:
         self.fixed = np.zeros(self.n, np.bool_)
         self.fixed[list(pins.tiles)] = True
         self._no_parent = np.full(4 * self.n, -1, np.int64)
+        live = table.second[(table.second > 0) & ~table.dead]
+        self.bonus = float(np.median(live)) if live.size else 0.0
 
     def greedy(self, seed, shape, kfree):
         return K.greedy(seed, 0, shape[0], shape[1], self.n, self.tab, self.cand, self.second, self.bb,
@@ -270,7 +274,12 @@ class _Problem:
         return int(np.sum((p >= 0) & (p == self.bb)))
 
     def fitness(self, grid):
-        return float(K.fitness(grid[0], grid[1], self.tab))
+        """Search objective (see :func:`stitch._kernels.fitness`)."""
+        return float(K.fitness(grid[0], grid[1], self.tab, self.bonus))
+
+    def total_cost(self, grid):
+        """Plain total seam cost."""
+        return float(K.fitness(grid[0], grid[1], self.tab, 0.0))
 
     def normalized_cost(self, grid):
         """Mean of cost / second-best over the seams (comparable across shapes)."""
@@ -395,7 +404,7 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
             best_shape, best_greedy, best_key = s, grid, key
     if settings.strategy == "greedy" or n < 3:
         return SearchResult(
-            tiles=best_greedy[0], orientations=best_greedy[1], cost=problem.fitness(best_greedy), strategy="greedy",
+            tiles=best_greedy[0], orientations=best_greedy[1], cost=problem.total_cost(best_greedy), strategy="greedy",
             shape_scores=shape_scores, agreement=np.ones(4 * n),
         )
     return _evolve(problem, best_shape, best_greedy, ranking, settings, rng, progress, shape_scores)
@@ -472,7 +481,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     agreement = np.mean([p == best_parts for p in top], axis=0)
     log.info("evolution: %d generations, best cost %.1f", generation, costs[order[0]])
     return SearchResult(
-        tiles=best[0], orientations=best[1], cost=float(costs[order[0]]),
+        tiles=best[0], orientations=best[1], cost=problem.total_cost(best),
         best_history=tuple(best_hist), mean_history=tuple(mean_hist), generations=generation,
         strategy="evolution", shape_scores=shape_scores, agreement=agreement,
     )

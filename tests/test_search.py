@@ -1,0 +1,104 @@
+"""The placement search: pins, holes, inferred grids, the crossover's invariants."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from conftest import skimage_image, write_raster
+from stitch import _kernels as K
+from stitch.layout import allowed_orientations, read_placement_csv
+from stitch.pipeline import SolveOptions, solve
+from stitch.puzzles import cut_raster, score_placement
+from stitch.search import Pins, _Problem
+from stitch.seams import score_seams
+from stitch.tiles import EdgeStrips, side_strips
+
+
+def _table(side=6, orients=(0,)):
+    img = skimage_image("coffee")[:, 60:60 + 28 * side, 150:150 + 28 * side].astype(np.float32)
+    tiles = [img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)] for r in range(side) for c in range(side)]
+    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
+    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    return score_seams(edges, orientations=orients)
+
+
+TABLE = _table(6, allowed_orientations(90, True))
+
+
+@settings(max_examples=60, deadline=None)
+@given(seed=st.integers(0, 2**31 - 1), mutation=st.sampled_from([0.0, 0.05, 1.0]),
+       shape=st.sampled_from([(6, 6), (4, 9), (9, 4), (7, 6)]), n_pins=st.integers(0, 3))
+def test_crossover_never_duplicates_or_drops_a_tile(seed, mutation, shape, n_pins):
+    rng = np.random.default_rng(seed)
+    pin_tiles = tuple(int(t) for t in rng.choice(36, n_pins, replace=False))
+    cells = rng.choice(shape[0] * shape[1], n_pins, replace=False)
+    pins = Pins(pin_tiles, tuple(int(c // shape[1]) for c in cells), tuple(int(c % shape[1]) for c in cells),
+                absolute=True)
+    p = _Problem(TABLE, TABLE.orientations, pins)
+    a, b = p.random(shape, rng), p.random(shape, rng)
+    pa, pb = K.partners(a[0], a[1], 36), K.partners(b[0], b[1], 36)
+    child = p.crossover(pa, pb, int(rng.integers(36)), 0, shape, mutation, int(rng.integers(2**31 - 1)))
+    placed = child[0][child[0] >= 0]
+    assert sorted(placed.tolist()) == list(range(36))
+    assert child[0].shape == shape
+    assert set(np.unique(child[1][child[0] >= 0])) <= set(TABLE.orientations)
+    for t, r, c in zip(pins.tiles, pins.rows, pins.cols):
+        assert child[0][r, c] == t and child[1][r, c] == 0
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_pinned_tiles_stay_and_the_rest_fits_around(tmp_path):
+    src = write_raster(tmp_path / "src.tif", skimage_image("astronaut")[:, :168, :196])
+    cut = cut_raster(src, tmp_path / "t", 28, shuffle=True, seed=8, key_path=tmp_path / "k.csv")
+    key = cut.key
+    # Pin three tiles at their true cells, shifted by one row into a larger grid.
+    chosen = [0, 17, 40]
+    pins = tuple((key.names[i], int(key.rows[i]) + 1, int(key.cols[i])) for i in chosen)
+    opts = SolveOptions(grid=(7, 7), pins=pins, seed=8)
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=opts)
+    p = result.placement
+    assert p.shape == (7, 7)
+    for name, row, col in pins:
+        i = p.names.index(name)
+        assert (p.rows[i], p.cols[i], p.rotations[i]) == (row, col, 0)
+    scores = score_placement(p, key, frame="fixed")
+    assert scores.perfect, scores
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_missing_tiles_leave_holes_and_neighbours_stay_right(tmp_path):
+    """5 % of a 10 x 10 set removed: the grid is still inferred, every present tile well placed."""
+    src = write_raster(tmp_path / "src.tif", skimage_image("coffee")[:, 60:340, 150:430])
+    cut = cut_raster(src, tmp_path / "t", 28, shuffle=True, seed=9, key_path=tmp_path / "k.csv")
+    rng = np.random.default_rng(9)
+    gone = rng.choice(100, 5, replace=False)
+    for i in gone:
+        (tmp_path / "t" / cut.key.names[i]).unlink()
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=9))
+    p = result.placement
+    assert p.shape == (10, 10) and int(p.placed.sum()) == 95
+    scores = score_placement(p, cut.key)
+    assert scores.direct == pytest.approx(95 / 100)  # every present tile in its cell
+    assert scores.missing == 5
+
+
+def test_search_plugin_through_entry_points(tmp_path, monkeypatch, tiles_dir):
+    site = tmp_path / "site"
+    dist = site / "rowwise_search-1.0.dist-info"
+    dist.mkdir(parents=True)
+    (dist / "METADATA").write_text("Metadata-Version: 2.1\nName: rowwise-search\nVersion: 1.0\n")
+    (dist / "entry_points.txt").write_text("[stitch.searches]\nrowwise = rowwise_mod:search\n")
+    (site / "rowwise_mod.py").write_text(
+        "import numpy as np\n"
+        "from stitch.search import search_placement, SearchSettings\n"
+        "def search(table, *, shape, orientations, settings, rng, progress, pins):\n"
+        "    return search_placement(table, shape=shape, orientations=orientations, rng=rng, pins=pins,\n"
+        "                            settings=SearchSettings(strategy='greedy'))\n")
+    monkeypatch.syspath_prepend(str(site))
+    from stitch.search import available_searches
+
+    assert "rowwise" in available_searches()
+    opts = SolveOptions(search=__import__("stitch").SearchSettings(strategy="rowwise"))
+    result = solve(tiles_dir, tmp_path / "m.tif", options=opts)
+    assert result.search.strategy == "greedy"
