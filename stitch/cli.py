@@ -137,11 +137,15 @@ def solve(
         help="Map X Y of the mosaic's upper-left corner (with --pixel-size).")] = None,
     pixel_size: Annotated[Optional[float], typer.Option(help="Ground size of a pixel (with --origin).")] = None,
     pixel_size_y: Annotated[Optional[float], typer.Option(help="Pixel height when it differs from --pixel-size.")] = None,
-    crs: Annotated[Optional[str], typer.Option(help="CRS of --bounds/--origin, e.g. EPSG:32633.")] = None,
+    gcps: Annotated[Optional[Path], typer.Option(
+        help="Ground control CSV tile,col,row,x,y (pixel/line inside the tile; map x, y in --crs).")] = None,
+    similarity: Annotated[bool, typer.Option("--similarity", help="Fit control points with 4 parameters, not 6.")] = False,
+    crs: Annotated[Optional[str], typer.Option(help="CRS of --bounds/--origin/--gcps, e.g. EPSG:32633.")] = None,
     pin: Annotated[Optional[list[str]], typer.Option(
         help="Known cell of a tile, NAME=ROW,COL (row 0 at the top); repeat for more. Pinned tiles never move.")] = None,
     report: Annotated[Optional[Path], typer.Option(help="Report folder (default: OUT's stem + _report).")] = None,
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
+    cog: Annotated[bool, typer.Option("--cog", help="Write a Cloud Optimized GeoTIFF (GDAL's COG driver).")] = False,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,
@@ -161,10 +165,11 @@ def solve(
     with _errors(verbose, quiet):
         size = None if pixel_size is None else (pixel_size, pixel_size_y or pixel_size)
         options = SolveOptions(
-            grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive, pins=pins,
+            grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive, pins=pins, cog=cog,
             search=SearchSettings(strategy=search, population=population, generations=generations,
                                   time_limit=time_limit),
-            georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs),
+            georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs,
+                              gcps=None if gcps is None else str(gcps), similarity=similarity),
         )
         result = run(tiles_dir, output, options=options, report_dir=report, overwrite=overwrite)
     if quiet:
@@ -175,6 +180,9 @@ def solve(
     typer.echo(f"placed {int(p.placed.sum())} tiles in a {p.shape[0]}x{p.shape[1]} grid ({how}, seed {seed})")
     g = result.georeference
     typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
+    if result.control is not None:
+        for i, (m, px) in enumerate(zip(result.control.residuals_map, result.control.residuals_px), start=1):
+            typer.echo(f"  control point {i}: residual {m:.4g} map units ({px:.3g} px)")
     for role, path in result.outputs.items():
         typer.echo(f"wrote {path}")
     flagged = result.flagged

@@ -84,16 +84,26 @@ class GeorefSpec:
     pixel_size : (size_x, size_y), optional
         Ground size of one pixel; ``size_y`` positive (rows run south).
     crs : str or CRS, optional
+    gcps : path-like, optional
+        Ground control CSV (``tile,col,row,x,y``), see :mod:`stitch.control`.
+    similarity : bool
+        Fit control points with 4 parameters instead of 6.
     """
 
     bounds: tuple[float, float, float, float] | None = None
     origin: tuple[float, float] | None = None
     pixel_size: tuple[float, float] | None = None
     crs: str | CRS | None = None
+    gcps: str | None = None
+    similarity: bool = False
 
     def __post_init__(self):
-        if self.bounds is not None and self.origin is not None:
-            raise OptionError("give either --bounds or --origin, not both")
+        given = [name for name, v in (("--bounds", self.bounds), ("--origin", self.origin), ("--gcps", self.gcps))
+                 if v is not None]
+        if len(given) > 1:
+            raise OptionError(f"give one of --bounds, --origin or --gcps, not {' and '.join(given)}")
+        if self.gcps is not None and self.crs is None:
+            raise OptionError("--gcps needs --crs, the CRS of the control points' map coordinates")
         if self.origin is not None and self.pixel_size is None:
             raise OptionError("--origin needs --pixel-size")
         if self.pixel_size is not None and self.origin is None:
@@ -110,7 +120,7 @@ class GeorefSpec:
 
     @property
     def is_empty(self):
-        return self.bounds is None and self.origin is None
+        return self.bounds is None and self.origin is None and self.gcps is None
 
 
 def parse_crs(value):

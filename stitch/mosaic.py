@@ -16,6 +16,7 @@ import rasterio
 from rasterio.enums import ColorInterp, Resampling
 from rasterio.errors import NotGeoreferencedWarning as _GdalNotGeoreferenced
 from rasterio.errors import RasterioError
+from rasterio.shutil import copy as rio_copy
 from rasterio.windows import Window
 
 from . import __version__
@@ -79,7 +80,7 @@ def mosaic_profile(tileset, placement, georef, nodata):
     return profile
 
 
-def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews=True, progress=None):
+def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews=True, cog=False, progress=None):
     """Write the mosaic GeoTIFF and its world file.
 
     Parameters
@@ -93,6 +94,8 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
         Replace existing outputs.
     overviews : bool, optional
         Add internal overviews (factors 2, 4, ...) down to about 256 px.
+    cog : bool, optional
+        Write a Cloud Optimized GeoTIFF through GDAL's COG driver.
     progress : callable, optional
         Called with the number of tiles written so far.
 
@@ -106,7 +109,8 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     has_holes = bool(placement.shape[0] * placement.shape[1] > placement.placed.sum())
     nodata = choose_nodata(tileset.dtype, tileset.nodata, has_holes)
     profile = mosaic_profile(tileset, placement, georef, nodata)
-    with atomic_path(path, overwrite=overwrite) as tmp:
+    with atomic_path(path, overwrite=overwrite) as final_tmp:
+        tmp = final_tmp.with_name(final_tmp.name + ".gtiff") if cog else final_tmp
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", _GdalNotGeoreferenced)
@@ -132,7 +136,7 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
                         STITCH_CAUTION=CAUTION,
                         STITCH_GEOREFERENCE=georef.source,
                     )
-                    if overviews:
+                    if overviews and not cog:  # the COG driver builds its own
                         factors = []
                         f = 2
                         while max(dst.width, dst.height) / f >= 256:
@@ -141,8 +145,14 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
                         if factors:
                             dst.build_overviews(factors, Resampling.average)
                             dst.update_tags(ns="rio_overview", resampling="average")
+            if cog:
+                rio_copy(tmp, final_tmp, driver="COG", compress="DEFLATE", predictor=profile["predictor"],
+                         overview_resampling="average", bigtiff="IF_SAFER")
         except RasterioError as exc:
             raise OutputError(f"cannot write mosaic {str(path)!r}: {exc}") from exc
+        finally:
+            if cog:
+                tmp.unlink(missing_ok=True)
     write_text_atomic(wld, world_file_text(georef.transform), overwrite=overwrite)
     log.info("wrote %s (%d x %d px) and %s", path, profile["width"], profile["height"], wld.name)
     return {"mosaic": path, "world_file": wld}

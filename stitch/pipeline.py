@@ -17,7 +17,18 @@ import numpy as np
 
 from .errors import NotGeoreferencedWarning, OptionError, TileSetError
 from .files import check_outputs
-from .georef import PIXEL_SPACE, GeorefSpec, anchor_cells, from_anchors, from_bounds, from_origin, world_file_path
+from .control import fit_control, read_gcps
+from .georef import (
+    PIXEL_SPACE,
+    Georeference,
+    GeorefSpec,
+    anchor_cells,
+    from_anchors,
+    from_bounds,
+    from_origin,
+    parse_crs,
+    world_file_path,
+)
 from .layout import Placement, allowed_orientations, normalize_frame
 from .mosaic import write_mosaic
 from .report import check_report, report_paths, write_report
@@ -55,6 +66,8 @@ class SolveOptions:
         Georeferencing given by the user (overrides anchor tiles).
     confidence_threshold : float
         Tiles below it are flagged for review.
+    cog : bool
+        Write the mosaic as a Cloud Optimized GeoTIFF.
     pins : tuple of (name, row, col)
         Tiles whose grid cell is known; they never move. Without pins, tiles
         that kept georeferencing are pinned relative to each other.
@@ -71,6 +84,7 @@ class SolveOptions:
     georef: GeorefSpec = field(default_factory=GeorefSpec)
     confidence_threshold: float = 0.5
     pins: tuple = ()
+    cog: bool = False
 
     def __post_init__(self):
         if self.grid is not None and (len(self.grid) != 2 or min(self.grid) < 1):
@@ -110,6 +124,8 @@ class SolveResult:
     timings : dict
         Seconds per stage.
     warnings : tuple of str
+    control : stitch.control.GcpFit or None
+        The ground control fit, with residuals, when control points were used.
     """
 
     placement: Placement
@@ -120,6 +136,7 @@ class SolveResult:
     outputs: dict = field(default_factory=dict)
     timings: dict = field(default_factory=dict)
     warnings: tuple = ()
+    control: object = None
 
     @property
     def flagged(self):
@@ -188,17 +205,27 @@ def place_tiles(tileset, options=None, *, progress=None):
 
 
 def _georeference(options, placement, tileset):
+    """Georeference and, for control points, the fit (or None)."""
     spec = options.georef
     anchored = from_anchors(placement, tileset)
+    if spec.gcps is not None:
+        fit = fit_control(read_gcps(spec.gcps), placement, tileset.width, tileset.height,
+                          similarity=spec.similarity)
+        g = Georeference(fit.transform, parse_crs(spec.crs),
+                         f"{len(fit.residuals_map)} ground control points, {fit.method}, "
+                         f"RMSE {fit.rmse_map:.4g} map units ({fit.rmse_px:.3g} px)")
+        if anchored is not None:
+            log.warning("ground control overrides %s", anchored.source)
+        return g, fit
     if spec.bounds is not None:
         g = from_bounds(spec.bounds, placement.shape[1] * tileset.width, placement.shape[0] * tileset.height, spec.crs)
     elif spec.origin is not None:
         g = from_origin(spec.origin, spec.pixel_size, spec.crs)
     else:
-        return anchored
+        return anchored, None
     if anchored is not None:
         log.warning("georeferencing from the command line overrides %s", anchored.source)
-    return g
+    return g, None
 
 
 def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, progress=None):
@@ -247,10 +274,15 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     placement, search, _ = place_tiles(tileset, options, progress=progress)
     timings["place"] = time.perf_counter() - t0
 
-    georef = _georeference(options, placement, tileset)
+    georef, fit = _georeference(options, placement, tileset)
+    if fit is not None and fit.outliers:
+        names = ", ".join(f"#{i + 1} ({fit.residuals_map[i]:.3g} map units)" for i in fit.outliers)
+        msg = f"control point(s) {names} lie more than 3 x the RMSE of the others off the fit; check them"
+        warnings.warn(msg, UserWarning, stacklevel=2)
+        notes.append(msg)
     if georef is None:
         georef = PIXEL_SPACE
-        msg = ("no georeferencing found: the mosaic is in pixel space; add --bounds or --origin with "
+        msg = ("no georeferencing found: the mosaic is in pixel space; add --bounds, --origin or --gcps with "
                "--crs, or keep one tile's GeoTIFF tags or world file")
         warnings.warn(msg, NotGeoreferencedWarning, stacklevel=2)
         notes.append(msg)
@@ -258,10 +290,9 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         notes.append(f"{int(tileset.blank.sum())} blank tile(s) placed with no evidence; check them")
 
     t0 = time.perf_counter()
-    outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite)
+    outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite, cog=options.cog)
     timings["write"] = time.perf_counter() - t0
-    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes))
     outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
-    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes))
+    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit)
     write_report(result, report_dir, overwrite=overwrite)
     return result

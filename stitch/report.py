@@ -59,6 +59,14 @@ def _jsonable(value):
     return value
 
 
+def _control(fit):
+    if fit is None:
+        return None
+    return {"method": fit.method, "rmse_map": fit.rmse_map, "rmse_px": fit.rmse_px,
+            "residuals_map": fit.residuals_map.tolist(), "residuals_px": fit.residuals_px.tolist(),
+            "outliers": list(fit.outliers)}
+
+
 def summary_dict(result):
     """Everything a reviewer needs to know about a run, as plain data."""
     p = result.placement
@@ -79,7 +87,7 @@ def summary_dict(result):
                    "cost": result.search.cost, "best_cost": list(result.search.best_history),
                    "mean_cost": list(result.search.mean_history)},
         "georeference": {"source": g.source, "crs": g.crs.to_string() if g.crs else None,
-                         "transform": list(g.transform)[:6]},
+                         "transform": list(g.transform)[:6], "control": _control(result.control)},
         "flagged_tiles": [p.names[i] for i in low],
         "outputs": result.outputs,
         "timings_s": {k: round(v, 4) for k, v in result.timings.items()},

@@ -132,3 +132,68 @@ def test_anchors_in_different_crs_are_refused(tmp_path, utm_raster):
         dst.crs = "EPSG:32631"
     with pytest.raises(GeoreferenceError, match="different CRSs"):
         solve(out, tmp_path / "out.tif")
+
+
+def _geotiff_tags(path):
+    """ModelPixelScale, ModelTiepoint and GeoKeys read with tifffile, independently of GDAL."""
+    import tifffile
+
+    with tifffile.TiffFile(path) as tif:
+        tags = tif.pages[0].tags
+        scale = tuple(tags[33550].value)  # ModelPixelScaleTag
+        tie = tuple(tags[33922].value)  # ModelTiepointTag
+        keydir = tags[34735].value  # GeoKeyDirectoryTag: header, then (key, location, count, value) entries
+    keys = {keydir[i]: keydir[i + 3] for i in range(4, len(keydir), 4) if keydir[i + 1] == 0}
+    return scale, tie, keys
+
+
+def test_geotiff_tags_follow_ogc_geotiff(tmp_path, tiles_dir, utm_raster):
+    """OGC GeoTIFF 1.1 (OGC 19-008r4): pixel scale and tiepoint match the transform,
+    the tiepoint ties raster (0, 0) (the upper-left corner) to the map, the raster is
+    PixelIsArea (GTRasterTypeGeoKey 1025 = 1) and ProjectedCRSGeoKey (3072) is the EPSG code."""
+    result = solve(tiles_dir, tmp_path / "m.tif")
+    with rasterio.open(utm_raster) as src:
+        t = src.transform
+    scale, tie, keys = _geotiff_tags(result.outputs["mosaic"])
+    assert scale[:2] == (t.a, -t.e)
+    assert tie[:2] == (0.0, 0.0) and tie[3:5] == (t.c, t.f)
+    assert keys[1025] == 1
+    assert keys[3072] == 32630
+
+
+def test_geographic_crs_uses_geodetic_geokey(tmp_path, tiles_dir):
+    """OGC GeoTIFF 1.1: a geographic CRS goes in GeodeticCRSGeoKey (2048)."""
+    opts = SolveOptions(georef=GeorefSpec(origin=(-105.6, 40.4), pixel_size=(2.5e-5, 2.5e-5), crs="EPSG:4326"))
+    result = solve(tiles_dir, tmp_path / "m.tif", options=opts)
+    scale, tie, keys = _geotiff_tags(result.outputs["mosaic"])
+    assert keys[2048] == 4326 and keys[1025] == 1
+    assert scale[:2] == (2.5e-5, 2.5e-5) and tie[3:5] == (-105.6, 40.4)
+
+
+def test_cog_layout_reported_by_gdal(tmp_path):
+    """GDAL reports LAYOUT=COG for files from its COG driver; tiled, with overviews."""
+    from stitch.layout import Placement
+    from stitch.mosaic import write_mosaic
+    from stitch.puzzles import cut_raster
+    from stitch.tiles import read_tileset
+
+    src = write_raster(tmp_path / "retina.tif", skimage_image("retina")[:, :1024, :1024],
+                       transform=from_origin_utm(), crs="EPSG:32630")
+    cut = cut_raster(src, tmp_path / "t", 128, seed=1)
+    ts = read_tileset(tmp_path / "t")
+    key = cut.key
+    order = [key.names.index(n) for n in ts.names]
+    p = Placement(ts.names, key.shape, key.rows[order], key.cols[order], key.rotations[order], key.mirrored[order])
+    from stitch.georef import Georeference
+
+    g = Georeference(from_origin_utm(), rasterio.crs.CRS.from_epsg(32630), "test")
+    out = write_mosaic(ts, p, g, tmp_path / "m.tif", cog=True)["mosaic"]
+    with rasterio.open(out) as dst:
+        assert dst.tags(ns="IMAGE_STRUCTURE")["LAYOUT"] == "COG"
+        assert dst.profile["tiled"] and dst.overviews(1)
+        assert dst.transform == from_origin_utm()
+    assert not list(tmp_path.glob(".*partial*"))
+
+
+def from_origin_utm():
+    return rio_from_origin(431000.0, 5800000.0, 0.5, 0.5)

@@ -1,0 +1,167 @@
+"""Placement accuracy and time: greedy, greedy + evolution, and a plain GA.
+
+Puzzles of 28 px tiles cut from open images shipped in packages (scikit-image:
+astronaut, camera, hubble_deep_field, retina, grass, gravel, brick;
+matplotlib's sample DEM), upright and with quarter turns, plus 1,000 tiles of
+64 px and 10,000 tiles of 28 px from a generated landscape (the demo's
+generator). Each row gives direct / neighbour / perfect (Cho, Avidan &
+Freeman 2010) and seconds for seam scoring plus search.
+
+The plain GA (random permutation chromosome, order crossover, swap mutation,
+tournament selection, same fitness) gets the same time as greedy + evolution.
+
+    python bench/solve.py             # open images, 1,000 tiles, 10,000 tiles
+    python bench/solve.py --quick     # open images upright only
+"""
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+from stitch import _kernels as K
+from stitch.layout import Placement, allowed_orientations, normalize_frame
+from stitch.puzzles import score_placement
+from stitch.search import SearchSettings, _Problem, search_placement
+from stitch.seams import score_seams
+from stitch.tiles import EdgeStrips, orient, side_strips
+
+TILE = 28
+
+
+def _open_images():
+    from matplotlib import cbook
+    from skimage import data
+
+    out = {}
+    for name in ("astronaut", "camera", "hubble_deep_field", "retina", "grass", "gravel", "brick"):
+        img = getattr(data, name)()
+        out[name] = img[None] if img.ndim == 2 else np.moveaxis(img, -1, 0)
+    with cbook.get_sample_data("jacksboro_fault_dem.npz") as dem:
+        out["jacksboro DEM"] = np.asarray(dem["elevation"])[None]
+    return out
+
+
+def _landscape(rows, cols, tile, seed):
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "demo_tiles"))
+    from make_demo import landscape
+
+    img = landscape(rows * tile, cols * tile, np.random.default_rng(seed))
+    return np.moveaxis(img, -1, 0)
+
+
+def _puzzle(img, rows, cols, tile, turns, rng):
+    """Shuffled (and turned) tiles plus the answer key."""
+    n = rows * cols
+    perm = rng.permutation(n)
+    rot = rng.integers(0, 4, n) if turns else np.zeros(n, int)
+    tiles = []
+    for k in range(n):
+        r, c = divmod(perm[k], cols)
+        tiles.append(orient(img[:, r * tile:(r + 1) * tile, c * tile:(c + 1) * tile].astype(np.float32), rot[k]))
+    names = tuple(map(str, range(n)))
+    key = Placement(names, (rows, cols), perm // cols, perm % cols, (-rot) % 4, np.zeros(n, bool))
+    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
+    return EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides)), key
+
+
+def _placement(grid, names, turns):
+    p = Placement.from_grid(names, grid[0], grid[1])
+    return normalize_frame(p, turns=(0, 1, 2, 3) if turns else (0,))
+
+
+def _plain_ga(table, shape, orients, seconds, rng):
+    """Random-permutation GA with order crossover and swap mutation."""
+    prob = _Problem(table, orients)
+    n = table.n_tiles
+    pop_size = 100
+    orients = np.asarray(orients)
+
+    def make(perm, ori):
+        return perm.reshape(shape).copy(), ori.reshape(shape).copy()
+
+    pop = [(rng.permutation(n), rng.choice(orients, n)) for _ in range(pop_size)]
+    cost = np.array([prob.fitness(make(*ind)) for ind in pop])
+    deadline = time.perf_counter() + seconds
+    while time.perf_counter() < deadline:
+        order = np.argsort(cost)
+        new = [pop[i] for i in order[:4]]
+        while len(new) < pop_size:
+            a, b = (pop[min(rng.integers(0, pop_size, 3), key=lambda i: cost[i])] for _ in range(2))
+            i, j = sorted(rng.integers(0, n, 2))
+            child = np.full(n, -1)
+            child[i:j + 1] = a[0][i:j + 1]
+            rest = b[0][~np.isin(b[0], child[i:j + 1])]
+            child[child < 0] = rest
+            ori = np.where(np.isin(np.arange(n), np.arange(i, j + 1)), a[1], b[1])
+            if rng.random() < 0.3:
+                u, v = rng.integers(0, n, 2)
+                child[[u, v]] = child[[v, u]]
+            new.append((child, ori))
+        pop = new
+        cost = np.array([prob.fitness(make(*ind)) for ind in pop])
+    best = pop[int(np.argmin(cost))]
+    return make(*best)
+
+
+def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None):
+    tile = img.shape[1] // rows
+    edges, key = _puzzle(img, rows, cols, tile, turns, rng)
+    orients = allowed_orientations(90, False) if turns else (0,)
+    t0 = time.perf_counter()
+    table = score_seams(edges, orientations=orients)
+    t_seams = time.perf_counter() - t0
+    out = {}
+    for method in methods:
+        t0 = time.perf_counter()
+        if method == "plain GA":
+            grid = _plain_ga(table, (rows, cols), orients, out["greedy + evolution"][3] - t_seams, rng)
+        else:
+            strategy = "greedy" if method == "greedy" else "evolution"
+            res = search_placement(table, shape=(rows, cols), orientations=orients, rng=1,
+                                   settings=SearchSettings(strategy=strategy, time_limit=time_limit))
+            grid = (res.tiles, res.orientations)
+        dt = time.perf_counter() - t0 + t_seams
+        s = score_placement(_placement(grid, key.names, turns), key)
+        out[method] = (s.direct, s.neighbor, s.perfect, dt)
+        print(f"| {name} | {rows}x{cols} | {'quarter' if turns else 'upright'} | {method} | {s.direct:.3f} | "
+              f"{s.neighbor:.3f} | {'yes' if s.perfect else 'no'} | {dt:.1f} |", flush=True)
+    return out
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true")
+    ap.add_argument("--skip-open", action="store_true")
+    ap.add_argument("--skip-large", action="store_true")
+    ap.add_argument("--time-limit", type=float, default=15.0,
+                    help="seconds for the evolutionary stage on the open-image puzzles (default 15)")
+    args = ap.parse_args()
+    rng = np.random.default_rng(2026)
+    methods = ("greedy", "greedy + evolution", "plain GA")
+    print("| puzzle | grid | turns | method | direct | neighbour | perfect | seconds |")
+    print("|---|---|---|---|---:|---:|---:|---:|")
+    # warm up the compiled kernels so their one-off compilation is not timed
+    img0 = _open_images()["astronaut"][:, :112, :112]
+    run_case("warm-up", img0, 4, 4, True, rng, ("greedy", "greedy + evolution"))
+    summary = {}
+    if not args.skip_open:
+        for name, img in _open_images().items():
+            rows, cols = min(18, img.shape[1] // TILE), min(24, img.shape[2] // TILE)
+            for turns in ((False,) if args.quick else (False, True)):
+                res = run_case(name, img, rows, cols, turns, rng, methods, time_limit=args.time_limit)
+                for m, v in res.items():
+                    summary.setdefault((turns, m), []).append(v)
+        for (turns, m), vals in summary.items():
+            v = np.array([[d, nb, p, t] for d, nb, p, t in vals], float)
+            print(f"| **mean** | | {'quarter' if turns else 'upright'} | {m} | {v[:, 0].mean():.3f} | "
+                  f"{v[:, 1].mean():.3f} | {int(v[:, 2].sum())}/{len(v)} | {v[:, 3].mean():.1f} |")
+    if not (args.quick or args.skip_large):
+        run_case("landscape 64 px", _landscape(32, 32, 64, 1), 32, 32, False, rng, methods[:2])
+        run_case("landscape 28 px", _landscape(100, 100, 28, 2), 100, 100, False, rng, methods[:2], time_limit=240)
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,222 @@
+"""Ground control: fit the mosaic's transform to surveyed points.
+
+A ground control file is a CSV with the header ``tile,col,row,x,y``: a
+position inside a named tile in GDAL's pixel/line convention ((0, 0) is the
+upper-left corner of the tile's upper-left pixel, (0.5, 0.5) its centre) and
+its map coordinate, in the CRS given with ``--crs``.
+
+Two fits, by least squares:
+
+* affine, 6 parameters (EPSG method 9624, "Affine parametric
+  transformation"): ``X = A0 + A1 x + A2 y``, ``Y = B0 + B1 x + B2 y``;
+* similarity, 4 parameters (EPSG method 9621, "Similarity transformation"):
+  one scale, one rotation and a shift; used with ``--similarity`` or when only
+  two points are given.
+
+Each point's residual is reported in map units and pixels, with the RMSE;
+points off by more than three times the RMSE of the other points are flagged.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from affine import Affine
+
+from .errors import GeoreferenceError
+
+__all__ = ["ControlPoint", "GcpFit", "fit_affine", "fit_similarity", "mosaic_point", "read_gcps", "fit_control"]
+
+CSV_COLUMNS = ("tile", "col", "row", "x", "y")
+
+
+@dataclass(frozen=True)
+class ControlPoint:
+    """One ground control point: a tile position and its map coordinate."""
+
+    tile: str
+    col: float
+    row: float
+    x: float
+    y: float
+
+
+@dataclass(frozen=True)
+class GcpFit:
+    """A fitted mosaic transform and how well it fits its points.
+
+    Attributes
+    ----------
+    transform : affine.Affine
+        Mosaic pixel corner (col, row) to map (x, y).
+    method : str
+        ``"affine (EPSG:9624)"`` or ``"similarity (EPSG:9621)"``.
+    residuals_map : ndarray, shape (n,)
+        Distance between fitted and given map coordinates, map units.
+    residuals_px : ndarray, shape (n,)
+        The same in mosaic pixels.
+    rmse_map, rmse_px : float
+    outliers : tuple of int
+        Points whose residual exceeds three times the RMSE of the other points.
+    """
+
+    transform: Affine
+    method: str
+    residuals_map: np.ndarray
+    residuals_px: np.ndarray
+    rmse_map: float
+    rmse_px: float
+    outliers: tuple
+
+
+def read_gcps(path):
+    """Read a ground control CSV (``tile,col,row,x,y``).
+
+    Raises
+    ------
+    GeoreferenceError
+        Missing columns, non-numeric or non-finite values, or no points.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except OSError as exc:
+        raise GeoreferenceError(f"cannot read ground control file {str(path)!r}: {exc.strerror}") from None
+    except UnicodeDecodeError:
+        raise GeoreferenceError(f"ground control file {str(path)!r} is not UTF-8 text") from None
+    reader = csv.DictReader(io.StringIO(text))
+    header = [h.strip() for h in (reader.fieldnames or [])]
+    missing = [c for c in CSV_COLUMNS if c not in header]
+    if missing:
+        raise GeoreferenceError(
+            f"ground control file {path.name!r} lacks column(s) {', '.join(missing)}; "
+            f"expected header {','.join(CSV_COLUMNS)}"
+        )
+    points = []
+    for lineno, row in enumerate(reader, start=2):
+        row = {(k or "").strip(): v for k, v in row.items()}
+        try:
+            values = [float(row[c]) for c in CSV_COLUMNS[1:]]
+        except (TypeError, ValueError):
+            raise GeoreferenceError(f"{path.name} line {lineno}: col, row, x and y must be numbers") from None
+        if not all(map(math.isfinite, values)):
+            raise GeoreferenceError(f"{path.name} line {lineno}: values must be finite numbers")
+        points.append(ControlPoint((row["tile"] or "").strip(), *values))
+    if not points:
+        raise GeoreferenceError(f"ground control file {path.name!r} holds no points")
+    return points
+
+
+def fit_affine(src, dst):
+    """Least-squares 6-parameter affine (EPSG method 9624).
+
+    Parameters
+    ----------
+    src, dst : array_like, shape (n, 2)
+        Source and target coordinates.
+
+    Returns
+    -------
+    (A0, A1, A2, B0, B1, B2)
+        ``X = A0 + A1 x + A2 y``, ``Y = B0 + B1 x + B2 y``.
+
+    Raises
+    ------
+    GeoreferenceError
+        Fewer than three points, or all on one line.
+    """
+    src = np.asarray(src, float)
+    dst = np.asarray(dst, float)
+    if len(src) < 3:
+        raise GeoreferenceError(f"an affine fit needs at least 3 control points, got {len(src)}; use --similarity")
+    design = np.column_stack([np.ones(len(src)), src])
+    if np.linalg.matrix_rank(design - [0, *src.mean(axis=0)], tol=1e-9 * max(1.0, np.abs(src).max())) < 3:
+        raise GeoreferenceError("control points lie on one line; an affine fit needs points spread in two directions")
+    (a0, a1, a2), *_ = np.linalg.lstsq(design, dst[:, 0], rcond=None)
+    (b0, b1, b2), *_ = np.linalg.lstsq(design, dst[:, 1], rcond=None)
+    return a0, a1, a2, b0, b1, b2
+
+
+def fit_similarity(src, dst):
+    """Least-squares 4-parameter similarity (EPSG method 9621).
+
+    ``X = X0 + a x + b y``, ``Y = Y0 - b x + a y`` with ``a = M cos(theta)``,
+    ``b = M sin(theta)``.
+
+    Returns
+    -------
+    (X0, Y0, a, b)
+    """
+    src = np.asarray(src, float)
+    dst = np.asarray(dst, float)
+    if len(src) < 2 or np.allclose(src, src[0]):
+        raise GeoreferenceError("a similarity fit needs at least 2 distinct control points")
+    x, y = src[:, 0], src[:, 1]
+    one, zero = np.ones(len(src)), np.zeros(len(src))
+    design = np.vstack([np.column_stack([one, zero, x, y]), np.column_stack([zero, one, y, -x])])
+    (x0, y0, a, b), *_ = np.linalg.lstsq(design, np.concatenate([dst[:, 0], dst[:, 1]]), rcond=None)
+    return x0, y0, a, b
+
+
+def mosaic_point(placement, index, col, row, width, height):
+    """Where a position inside a tile file lands in the mosaic, in pixels.
+
+    Follows the tile's mirror and clockwise quarter turns (see
+    :mod:`stitch.layout`); coordinates are continuous (pixel corners).
+    """
+    u, v, w, h = float(col), float(row), float(width), float(height)
+    if placement.mirrored[index]:
+        u = w - u
+    for _ in range(int(placement.rotations[index]) % 4):
+        u, v, w, h = h - v, u, h, w
+    return placement.cols[index] * width + u, placement.rows[index] * height + v
+
+
+def fit_control(points, placement, width, height, *, similarity=False):
+    """Fit the mosaic transform to control points given in tile coordinates.
+
+    Raises
+    ------
+    GeoreferenceError
+        A point names a tile that is not placed, or the set is degenerate.
+    """
+    index = {name: i for i, name in enumerate(placement.names)}
+    src, dst = [], []
+    for p in points:
+        i = index.get(p.tile)
+        if i is None or placement.rows[i] < 0:
+            raise GeoreferenceError(f"control point names tile {p.tile!r}, which is not placed; check the name")
+        src.append(mosaic_point(placement, i, p.col, p.row, width, height))
+        dst.append((p.x, p.y))
+    src, dst = np.array(src), np.array(dst)
+    if similarity or len(points) == 2:
+        # Pixel rows run down and map y up: fit on (col, -row), then fold the flip in.
+        x0, y0, a, b = fit_similarity(src * [1, -1], dst)
+        transform = Affine(a, -b, x0, -b, -a, y0)
+        method = "similarity (EPSG:9621)"
+    else:
+        a0, a1, a2, b0, b1, b2 = fit_affine(src, dst)
+        transform = Affine(a1, a2, a0, b1, b2, b0)
+        method = "affine (EPSG:9624)"
+    fitted = np.array([transform @ tuple(s) for s in src])
+    res_map = np.hypot(*(fitted - dst).T)
+    px = math.sqrt(abs(transform.a * transform.e - transform.b * transform.d))
+    res_px = res_map / px if px > 0 else res_map
+    rmse_map = float(np.sqrt(np.mean(res_map**2)))
+    # An outlier inflates the RMSE it is compared with (with n points no
+    # residual can exceed sqrt(n) x RMSE), so each point is compared with the
+    # RMSE of the others; sub-hundredth-pixel residuals are never flagged.
+    outliers = []
+    if len(res_map) >= 3:
+        sq = res_map**2
+        for i in range(len(res_map)):
+            others = math.sqrt((sq.sum() - sq[i]) / (len(sq) - 1))
+            if res_map[i] > 3 * others and res_px[i] > 0.01:
+                outliers.append(i)
+    outliers = tuple(outliers)
+    return GcpFit(transform, method, res_map, res_px, rmse_map, float(np.sqrt(np.mean(res_px**2))), outliers)
