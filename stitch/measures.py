@@ -23,12 +23,10 @@ plugin may also take just ``(left, right)``.
 from __future__ import annotations
 
 import inspect
-from importlib.metadata import entry_points
-
 import numpy as np
 from numba import njit, prange
 
-from .errors import OptionError
+from .plugins import Registry
 
 __all__ = [
     "DEFAULT_MEASURE",
@@ -251,21 +249,17 @@ _BUILTIN = {"mgc": mgc, "ssd": ssd, "prediction": prediction, "mgc+prediction": 
 DEFAULT_MEASURE = "mgc"
 
 
+_REGISTRY = Registry(ENTRY_POINT_GROUP, _BUILTIN, "--seam")
+
+
 def available_measures():
     """Names of built-in and installed measures, sorted."""
-    names = set(_BUILTIN)
-    names.update(ep.name for ep in entry_points(group=ENTRY_POINT_GROUP))
-    return sorted(names)
+    return _REGISTRY.names()
 
 
 def get_measure(name):
     """The measure registered under ``name`` (built in or by entry point)."""
-    if name in _BUILTIN:
-        return _BUILTIN[name]
-    for ep in entry_points(group=ENTRY_POINT_GROUP):
-        if ep.name == name:
-            return ep.load()
-    raise OptionError(f"--seam {name!r} is unknown; choose one of {', '.join(available_measures())}")
+    return _REGISTRY.get(name)
 
 
 def call_measure(fn, left, right, left_valid=None, right_valid=None):

@@ -25,12 +25,12 @@ import logging
 import math
 import time
 from dataclasses import dataclass, field
-from importlib.metadata import entry_points
 
 import numpy as np
 
 from . import _kernels as K
 from .errors import OptionError
+from .plugins import Registry
 
 __all__ = [
     "SEARCHES",
@@ -493,11 +493,12 @@ SEARCH_ENTRY_POINT_GROUP = "stitch.searches"
 _BUILTIN_SEARCHES = {"evolution": search_placement, "greedy": search_placement}
 
 
+_REGISTRY = Registry(SEARCH_ENTRY_POINT_GROUP, _BUILTIN_SEARCHES, "--search")
+
+
 def available_searches():
     """Names of built-in and installed search strategies, sorted."""
-    names = set(_BUILTIN_SEARCHES)
-    names.update(ep.name for ep in entry_points(group=SEARCH_ENTRY_POINT_GROUP))
-    return sorted(names)
+    return _REGISTRY.names()
 
 
 def get_search(name):
@@ -506,12 +507,7 @@ def get_search(name):
     A plugin search is called as ``search(table, *, shape, orientations,
     settings, rng, progress, pins)`` and returns a :class:`SearchResult`.
     """
-    if name in _BUILTIN_SEARCHES:
-        return _BUILTIN_SEARCHES[name]
-    for ep in entry_points(group=SEARCH_ENTRY_POINT_GROUP):
-        if ep.name == name:
-            return ep.load()
-    raise OptionError(f"--search {name!r} is unknown; choose one of {', '.join(available_searches())}")
+    return _REGISTRY.get(name)
 
 
 def tile_confidence(placement, table, agreement=None):
