@@ -5,7 +5,9 @@ a farm track, hedgerows and a copse, rendered procedurally at 0.25 m per
 pixel in WGS 84 / UTM zone 30N (EPSG:32630). The orthophoto is cut into 8 x 10
 tiles of 64 px, the tiles get scrambled names and lose their georeferencing,
 except two that keep their GeoTIFF tags, so the demo's mosaic comes out
-georeferenced. ``answer_key.csv`` holds the true placement.
+georeferenced. ``answer_key.csv`` holds the true placement and
+``control_points.csv`` five surveyed points (``tile,col,row,x,y``) for trying
+``--gcps``.
 
 Run from the repository root::
 
@@ -100,7 +102,20 @@ def main(out_dir=Path(__file__).parent):
             dst.write(np.moveaxis(img, -1, 0))
         result = cut_raster(src, out_dir, TILE, shuffle=True, strip_georef=True, keep_georef=2, seed=SEED,
                             overwrite=True)
+    write_control_points(result.key, out_dir / "control_points.csv")
     print(f"wrote {len(result.key.names)} tiles; georeferenced: {', '.join(result.georeferenced)}")
+
+
+def write_control_points(key, path):
+    """Five points at tile-pixel centres spread over the block, with their true coordinates."""
+    transform = from_origin(*ORIGIN, PIXEL, PIXEL)
+    lines = ["tile,col,row,x,y"]
+    for (r, c), (u, v) in [((0, 0), (10.5, 12.5)), ((0, COLS - 1), (50.5, 8.5)), ((ROWS - 1, 0), (5.5, 60.5)),
+                           ((ROWS - 1, COLS - 1), (60.5, 40.5)), ((ROWS // 2, COLS // 2), (32.5, 32.5))]:
+        i = [k for k in range(len(key.names)) if key.rows[k] == r and key.cols[k] == c][0]
+        x, y = transform @ (c * TILE + u, r * TILE + v)
+        lines.append(f"{key.names[i]},{u},{v},{x:.3f},{y:.3f}")
+    Path(path).write_text("\n".join(lines) + "\n")
 
 
 if __name__ == "__main__":

@@ -203,6 +203,10 @@ def fit_control(points, placement, width, height, *, similarity=False):
         a0, a1, a2, b0, b1, b2 = fit_affine(src, dst)
         transform = Affine(a1, a2, a0, b1, b2, b0)
         method = "affine (EPSG:9624)"
+    # Rotation terms a billion times smaller than the pixel size are rounding
+    # noise of the least squares; zero them so north-up stays north-up.
+    if abs(transform.b) < 1e-9 * abs(transform.a) and abs(transform.d) < 1e-9 * abs(transform.e):
+        transform = Affine(transform.a, 0.0, transform.c, 0.0, transform.e, transform.f)
     fitted = np.array([transform @ tuple(s) for s in src])
     res_map = np.hypot(*(fitted - dst).T)
     px = math.sqrt(abs(transform.a * transform.e - transform.b * transform.d))

@@ -143,7 +143,7 @@ def from_bounds(bounds, width, height, crs):
     """Georeference a ``width x height`` pixel mosaic to fill ``bounds``."""
     w, s, e, n = bounds
     return Georeference(rasterio.transform.from_bounds(w, s, e, n, width, height), parse_crs(crs),
-                        f"bounds {w:g} {s:g} {e:g} {n:g}")
+                        f"bounds {w:.12g} {s:.12g} {e:.12g} {n:.12g}")
 
 
 def from_origin(origin, pixel_size, crs):
@@ -151,7 +151,7 @@ def from_origin(origin, pixel_size, crs):
     x, y = origin
     sx, sy = pixel_size
     return Georeference(rasterio.transform.from_origin(x, y, sx, sy), parse_crs(crs),
-                        f"origin {x:g} {y:g}, pixel size {sx:g} x {sy:g}")
+                        f"origin {x:.12g} {y:.12g}, pixel size {sx:.12g} x {sy:.12g}")
 
 
 def _tile_offset(placement, index, tile_w, tile_h):
