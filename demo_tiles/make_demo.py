@@ -22,6 +22,7 @@ import numpy as np
 import rasterio
 from rasterio.transform import from_origin
 from scipy import ndimage
+from scipy.spatial import cKDTree
 
 ROWS, COLS, TILE = 8, 10, 64
 ORIGIN = (431_200.0, 5_802_400.0)  # fictional block, upper-left corner
@@ -30,14 +31,19 @@ SEED = 20261201
 
 
 def landscape(height, width, rng):
-    """An RGB uint8 orthophoto of invented farmland."""
+    """An RGB uint8 orthophoto of invented farmland.
+
+    Detail (fields, copses, tracks) grows with the area, so a large block looks
+    like more farmland rather than a few huge fields.
+    """
     yy, xx = np.mgrid[0:height, 0:width].astype(float)
+    scale = max(1.0, height * width / (512 * 640))
 
     # Fields: a Voronoi patchwork, each with its own crop colour and row direction.
-    n_fields = 14
+    n_fields = int(round(14 * scale))
     centres = rng.uniform([0, 0], [height, width], size=(n_fields, 2))
-    d = (yy[..., None] - centres[:, 0]) ** 2 + (xx[..., None] - centres[:, 1]) ** 2
-    field = d.argmin(axis=-1)
+    _, field = cKDTree(centres).query(np.column_stack([yy.ravel(), xx.ravel()]))
+    field = field.reshape(height, width)
     palette = np.array([
         [118, 140, 62], [150, 160, 80], [184, 168, 104], [96, 122, 58], [160, 130, 90],
         [132, 150, 72], [170, 176, 120], [110, 100, 70], [140, 160, 96], [190, 180, 130],
@@ -61,18 +67,30 @@ def landscape(height, width, rng):
     colour[bank] = colour[bank] * 0.3 + np.array([120, 105, 80]) * 0.7
     colour[water] = np.array([52, 78, 92]) + 10 * np.sin(yy[water] / 4.0)[:, None]
 
-    # A farm track crossing the block.
-    track = np.abs(yy - (0.6 * height + 0.25 * (xx - width / 2))) < 5
-    colour[track & ~water] = np.array([196, 186, 160])
+    # Farm tracks crossing the block (one on the demo's block).
+    offsets = [0.6] + (list(rng.uniform(0.05, 0.95, int(round(np.sqrt(scale))) - 1)) if scale > 1 else [])
+    for k, off in enumerate(offsets):
+        slope = 0.25 if k == 0 else rng.uniform(-0.6, 0.6)
+        track = np.abs(yy - (off * height + slope * (xx - width / 2))) < 5
+        colour[track & ~water] = np.array([196, 186, 160])
 
-    # A copse: clustered tree crowns with shadows.
-    copse = rng.uniform([height * 0.1, width * 0.65], [height * 0.4, width * 0.95], size=(70, 2))
-    for cy, cx in copse:
-        r = rng.uniform(5, 11)
-        crown = (yy - cy) ** 2 + (xx - cx) ** 2 < r * r
-        shadow = (yy - cy - 4) ** 2 + (xx - cx - 4) ** 2 < r * r
-        colour[shadow & ~crown] *= 0.55
-        colour[crown] = np.array([48, 86, 40]) * rng.uniform(0.8, 1.2)
+    # Copses: clustered tree crowns with shadows.
+    boxes = [(0.1, 0.65, 0.4, 0.95)]
+    for _ in range(int(round(scale)) - 1):
+        y0, x0 = rng.uniform(0, 0.85), rng.uniform(0, 0.85)
+        boxes.append((y0, x0, y0 + 0.12, x0 + 0.12))
+    for by0, bx0, by1, bx1 in boxes:
+        copse = rng.uniform([height * by0, width * bx0], [height * by1, width * bx1], size=(70, 2))
+        for cy, cx in copse:
+            r = rng.uniform(5, 11)
+            y0, y1 = max(0, int(cy - r) - 1), min(height, int(cy + r) + 6)
+            x0, x1 = max(0, int(cx - r) - 1), min(width, int(cx + r) + 6)
+            wy, wx = yy[y0:y1, x0:x1], xx[y0:y1, x0:x1]
+            crown = (wy - cy) ** 2 + (wx - cx) ** 2 < r * r
+            shadow = (wy - cy - 4) ** 2 + (wx - cx - 4) ** 2 < r * r
+            win = colour[y0:y1, x0:x1]
+            win[shadow & ~crown] *= 0.55
+            win[crown] = np.array([48, 86, 40]) * rng.uniform(0.8, 1.2)
 
     # Two barns.
     for by, bx, bh, bw in ((height * 0.75, width * 0.8, 26, 40), (height * 0.82, width * 0.72, 18, 22)):

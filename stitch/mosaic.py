@@ -37,6 +37,11 @@ CAUTION = (
 )
 
 
+#: GDAL's block cache while writing (its default is 5 % of RAM): the mosaic is
+#: written in row-major order, so a small cache suffices for any size.
+GDAL_CACHE_BYTES = 128 * 2**20
+
+
 def choose_nodata(dtype, tile_nodata, has_holes):
     """Nodata for the mosaic: the tiles' own, else one only holes need.
 
@@ -112,13 +117,17 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     with atomic_path(path, overwrite=overwrite) as final_tmp:
         tmp = final_tmp.with_name(final_tmp.name + ".gtiff") if cog else final_tmp
         try:
-            with warnings.catch_warnings():
+            with warnings.catch_warnings(), rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES):
                 warnings.simplefilter("ignore", _GdalNotGeoreferenced)
                 with rasterio.open(tmp, "w", **profile) as dst:
                     if has_holes and nodata is not None:
                         _fill_nodata(dst, nodata)
                     done = 0
-                    for i in np.flatnonzero(placement.placed):
+                    # Row-major cell order: each output block is finished
+                    # before the writer moves on, so GDAL's cache stays small.
+                    placed = np.flatnonzero(placement.placed)
+                    order = placed[np.lexsort((placement.cols[placed], placement.rows[placed]))]
+                    for i in order:
                         pixels = orient(tileset.read(i), placement.rotations[i], placement.mirrored[i])
                         window = Window(placement.cols[i] * tileset.width, placement.rows[i] * tileset.height,
                                         pixels.shape[2], pixels.shape[1])
@@ -146,8 +155,9 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
                             dst.build_overviews(factors, Resampling.average)
                             dst.update_tags(ns="rio_overview", resampling="average")
             if cog:
-                rio_copy(tmp, final_tmp, driver="COG", compress="DEFLATE", predictor=profile["predictor"],
-                         overview_resampling="average", bigtiff="IF_SAFER")
+                with rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES):
+                    rio_copy(tmp, final_tmp, driver="COG", compress="DEFLATE", predictor=profile["predictor"],
+                             overview_resampling="average", bigtiff="IF_SAFER")
         except RasterioError as exc:
             raise OutputError(f"cannot write mosaic {str(path)!r}: {exc}") from exc
         finally:
