@@ -81,6 +81,28 @@ def _parse_grid(value):
     return r, c
 
 
+@contextmanager
+def _progress_bars(enabled):
+    """rich progress bars on stderr, one per stage; a no-op callback when disabled."""
+    if not enabled:
+        yield None
+        return
+    from rich.console import Console
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    labels = {"read": "reading tiles", "seams": "scoring seams", "search": "searching", "write": "writing mosaic"}
+    with Progress(TextColumn("{task.description:<15}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                  TextColumn("{task.fields[detail]}"), console=Console(stderr=True), transient=False) as bars:
+        tasks = {}
+
+        def update(stage, done, total, detail=""):
+            if stage not in tasks:
+                tasks[stage] = bars.add_task(labels.get(stage, stage), total=total, detail="")
+            bars.update(tasks[stage], completed=done, total=total, detail=detail)
+
+        yield update
+
+
 def _parse_pin(value):
     name, sep, cell = value.rpartition("=")
     try:
@@ -171,7 +193,9 @@ def solve(
             georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs,
                               gcps=None if gcps is None else str(gcps), similarity=similarity),
         )
-        result = run(tiles_dir, output, options=options, report_dir=report, overwrite=overwrite)
+        with _progress_bars(not quiet and sys.stderr.isatty()) as progress:
+            result = run(tiles_dir, output, options=options, report_dir=report, overwrite=overwrite,
+                         progress=progress)
     if quiet:
         return
     p = result.placement
@@ -252,6 +276,41 @@ def score(
     typer.echo(f"perfect reconstruction: {'yes' if scores.perfect else 'no'}")
     if scores.missing:
         typer.echo(f"missing from the placement: {scores.missing} tile(s)")
+
+
+@app.command()
+def inspect(
+    tiles_dir: Annotated[Path, typer.Argument(help="Folder of tiles to check.")],
+    recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
+    as_json: Annotated[bool, typer.Option("--json", help="Print JSON for scripts.")] = False,
+    verbose: Verbose = 0,
+):
+    """Check a tile folder before solving (reads headers and edges; exit 1 if solve would fail)."""
+    from .preflight import inspect_tiles
+
+    _setup_logging(verbose, False)
+    with _errors(verbose):
+        found = inspect_tiles(tiles_dir, recursive=recursive)
+    if as_json:
+        typer.echo(json.dumps(found.as_dict(), indent=2))
+    else:
+        if found.tiles:
+            typer.echo(f"tiles: {found.tiles} of {found.tile_size[0]}x{found.tile_size[1]} px, {found.bands} band(s), "
+                       f"{found.dtype}, nodata {found.nodata}")
+            typer.echo(f"blank tiles: {len(found.blank)}" + (f" ({', '.join(found.blank[:5])})" if found.blank else ""))
+            typer.echo(f"groups of duplicate tiles: {len(found.duplicates)}")
+            typer.echo(f"georeferenced tiles: {len(found.georeferenced)}"
+                       + ("" if found.anchors_agree is None else
+                          (" (they agree)" if found.anchors_agree else " (they DISAGREE)")))
+            typer.echo(f"grid shapes that hold them: {', '.join(found.grid_shapes[:12])}")
+            typer.echo(f"estimated solve: ~{found.estimated_seconds:.0f} s, ~{found.estimated_memory_mb:.0f} MB (upright)")
+        for note in found.notes:
+            typer.echo(f"note: {note}")
+        for problem in found.problems:
+            typer.echo(f"problem: {problem}", err=True)
+        typer.echo("ready to solve" if found.ok else "solve would fail; fix the problems above")
+    if not found.ok:
+        raise typer.Exit(code=1)
 
 
 @app.command()

@@ -14,7 +14,7 @@ from pathlib import Path
 
 from .errors import OutputError, OutputExistsError
 
-__all__ = ["atomic_path", "check_outputs", "write_text_atomic"]
+__all__ = ["atomic_path", "check_outputs", "write_bytes_atomic", "write_text_atomic"]
 
 #: Marker in temporary names; also how leftovers of a killed run are recognised.
 PARTIAL_TAG = ".stitch-partial"
@@ -63,14 +63,19 @@ def atomic_path(path, *, overwrite=False):
         raise
 
 
-def write_text_atomic(path, text, *, overwrite=False):
-    """Write ``text`` (UTF-8) to ``path`` through a temporary file."""
+def write_bytes_atomic(path, data, *, overwrite=False):
+    """Write ``data`` to ``path`` through a temporary file."""
     with atomic_path(path, overwrite=overwrite) as tmp:
         try:
-            with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-                fh.write(text)
+            with open(tmp, "wb") as fh:
+                fh.write(data)
                 fh.flush()
                 os.fsync(fh.fileno())
         except OSError as exc:
             raise OutputError(f"cannot write {str(path)!r}: {exc.strerror}") from exc
     return Path(path)
+
+
+def write_text_atomic(path, text, *, overwrite=False):
+    """Write ``text`` (UTF-8, LF line ends) to ``path`` through a temporary file."""
+    return write_bytes_atomic(path, text.encode("utf-8"), overwrite=overwrite)

@@ -102,7 +102,7 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     cog : bool, optional
         Write a Cloud Optimized GeoTIFF through GDAL's COG driver.
     progress : callable, optional
-        Called with the number of tiles written so far.
+        Called as ``progress("write", done, total)`` per tile written.
 
     Returns
     -------
@@ -134,7 +134,7 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
                         dst.write(pixels, window=window)
                         done += 1
                         if progress is not None:
-                            progress(done)
+                            progress("write", done, len(order))
                     if tileset.colorinterp and len(tileset.colorinterp) == tileset.count \
                             and not (tileset.count == 3 and profile.get("photometric") == "rgb"):
                         dst.colorinterp = [c if isinstance(c, ColorInterp) else ColorInterp(c)

@@ -32,7 +32,7 @@ from .georef import (
 from .layout import Placement, allowed_orientations, normalize_frame
 from .mosaic import write_mosaic
 from .report import check_report, report_paths, write_report
-from .search import Pins, SearchSettings, search_placement, tile_confidence
+from .search import Pins, SearchSettings, search_placement, side_confidence, tile_confidence
 from .seams import DEFAULT_MEASURE, score_seams
 from .tiles import read_tileset
 
@@ -126,6 +126,10 @@ class SolveResult:
     warnings : tuple of str
     control : stitch.control.GcpFit or None
         The ground control fit, with residuals, when control points were used.
+    side_scores : ndarray, shape (n_tiles, 4) or None
+        Seam confidence on the top, right, bottom and left of each tile.
+    pinned : frozenset of int
+        Indices of tiles that were pinned.
     """
 
     placement: Placement
@@ -137,6 +141,8 @@ class SolveResult:
     timings: dict = field(default_factory=dict)
     warnings: tuple = ()
     control: object = None
+    side_scores: np.ndarray | None = None
+    pinned: frozenset = frozenset()
 
     @property
     def flagged(self):
@@ -179,7 +185,7 @@ def place_tiles(tileset, options=None, *, progress=None):
 
     Returns
     -------
-    (Placement, SearchResult, SeamTable)
+    (Placement, SearchResult, SeamTable, Pins)
     """
     options = options or SolveOptions()
     n = len(tileset)
@@ -188,7 +194,7 @@ def place_tiles(tileset, options=None, *, progress=None):
         raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
     table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates,
-                        blank=tileset.blank)
+                        blank=tileset.blank, progress=progress)
     pins = _pins(tileset, options)
     result = search_placement(table, shape=options.grid, orientations=orientations, settings=options.search,
                               rng=options.seed, progress=progress, pins=pins, holes=options.grid is None)
@@ -201,7 +207,7 @@ def place_tiles(tileset, options=None, *, progress=None):
         placement = normalize_frame(raw, turns=turns, mirror=options.mirrored, fit=options.grid, anchors=anchors)
     conf = tile_confidence(placement, table, result.agreement)
     conf[tileset.blank] = 0.0
-    return placement.with_confidence(conf), result, table
+    return placement.with_confidence(conf), result, table, pins
 
 
 def _georeference(options, placement, tileset):
@@ -243,7 +249,8 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     overwrite : bool, optional
         Replace existing outputs.
     progress : callable, optional
-        Search progress callback ``(generation, best, mean)``.
+        Called as ``progress(stage, done, total, detail="")`` with stage
+        ``"read"``, ``"seams"``, ``"search"`` or ``"write"``.
 
     Returns
     -------
@@ -265,13 +272,14 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
 
     timings, notes = {}, []
     t0 = time.perf_counter()
-    tileset = read_tileset(tiles_dir, recursive=options.recursive, exclude=[output])
+    tileset = read_tileset(tiles_dir, recursive=options.recursive, exclude=[output], progress=progress)
     if len(tileset) < 2:
         raise TileSetError(f"{str(tiles_dir)!r} holds a single tile; there is nothing to put together")
     timings["read"] = time.perf_counter() - t0
 
     t0 = time.perf_counter()
-    placement, search, _ = place_tiles(tileset, options, progress=progress)
+    placement, search, table, pins = place_tiles(tileset, options, progress=progress)
+    sides = side_confidence(placement, table)
     timings["place"] = time.perf_counter() - t0
 
     georef, fit = _georeference(options, placement, tileset)
@@ -290,9 +298,11 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         notes.append(f"{int(tileset.blank.sum())} blank tile(s) placed with no evidence; check them")
 
     t0 = time.perf_counter()
-    outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite, cog=options.cog)
+    outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite, cog=options.cog,
+                           progress=progress)
     timings["write"] = time.perf_counter() - t0
     outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
-    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit)
+    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit,
+                         sides, frozenset(pins.tiles))
     write_report(result, report_dir, overwrite=overwrite)
     return result

@@ -1,8 +1,12 @@
-"""Review outputs: what was placed where, how sure, and how the run went.
+"""The report folder: what was placed where, how sure, and how the run went.
 
-The report folder holds ``placement.csv`` (the documented contract, see
-:mod:`stitch.layout`) and ``summary.json`` (inputs, settings, seed, library
-versions, timings, georeferencing and warnings).
+* ``placement.csv``: the documented contract (see :mod:`stitch.layout`);
+* ``summary.json``: inputs, settings, seed, library versions, timings,
+  georeferencing (with control residuals), flagged tiles and warnings;
+* ``tiles.geojson``: tile footprints with review properties
+  (:func:`stitch.review.tiles_geojson`);
+* ``preview.png``, ``convergence.png`` and ``index.html``
+  (:mod:`stitch.review`).
 """
 
 from __future__ import annotations
@@ -15,14 +19,22 @@ from pathlib import Path
 import numpy as np
 
 from .errors import OutputError
-from .files import check_outputs, write_text_atomic
+from .files import check_outputs, write_bytes_atomic, write_text_atomic
 from .layout import write_placement_csv
 from .mosaic import CAUTION
+from .review import convergence_png, index_html, preview_png, tiles_geojson
 
-__all__ = ["REPORT_FILES", "check_report", "library_versions", "report_paths", "summary_dict", "write_report"]
+__all__ = ["REPORT_FILES", "check_report", "flagged_rows", "library_versions", "report_paths", "summary_dict", "write_report"]
 
 #: Files the report folder holds, by role.
-REPORT_FILES = {"placement": "placement.csv", "summary": "summary.json"}
+REPORT_FILES = {
+    "placement": "placement.csv",
+    "summary": "summary.json",
+    "footprints": "tiles.geojson",
+    "preview": "preview.png",
+    "convergence": "convergence.png",
+    "page": "index.html",
+}
 
 
 def report_paths(folder):
@@ -119,7 +131,33 @@ def write_report(result, folder, *, overwrite=False):
     paths = report_paths(folder)
     check_report(folder, overwrite=overwrite)
     folder.mkdir(exist_ok=True)
+    summary = summary_dict(result)
     write_placement_csv(result.placement, paths["placement"], overwrite=overwrite)
-    write_text_atomic(paths["summary"], json.dumps(summary_dict(result), indent=2) + "\n", overwrite=overwrite)
+    write_text_atomic(paths["summary"], json.dumps(summary, indent=2) + "\n", overwrite=overwrite)
+    write_text_atomic(paths["footprints"], tiles_geojson(result), overwrite=overwrite)
+    preview = preview_png(result)
+    convergence = convergence_png(result.search.best_history, result.search.mean_history)
+    write_bytes_atomic(paths["preview"], preview, overwrite=overwrite)
+    write_bytes_atomic(paths["convergence"], convergence, overwrite=overwrite)
+    write_text_atomic(paths["page"], index_html(summary, preview, convergence, flagged_rows(result)),
+                      overwrite=overwrite)
     return paths
+
+
+def flagged_rows(result):
+    """Rows of the flagged-tile table, each with the reason."""
+    p, ts = result.placement, result.tileset
+    threshold = result.options.confidence_threshold
+    rows = []
+    for name in result.flagged:
+        i = p.names.index(name)
+        why = ["blank tile: no evidence"] if ts.blank[i] else []
+        sides = result.side_scores[i] if result.side_scores is not None else np.full(4, np.nan)
+        weak = [label for label, v in zip(("top", "right", "bottom", "left"), sides) if np.isfinite(v) and v < 0.1]
+        if weak:
+            why.append("weak seams: " + ", ".join(weak))
+        why.append(f"confidence below {threshold}")
+        rows.append({"tile": name, "row": int(p.rows[i]), "col": int(p.cols[i]), "rotation": int(p.rotations[i]) * 90,
+                     "mirrored": bool(p.mirrored[i]), "confidence": f"{p.confidence[i]:.2f}", "why": "; ".join(why)})
+    return rows
 

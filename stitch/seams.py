@@ -332,7 +332,7 @@ class SeamTable:
         return np.clip(np.nan_to_num(r, nan=0.0), 0.0, 1.0)
 
 
-def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blank=None, dense=None):
+def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blank=None, dense=None, progress=None):
     """Score every seam the allowed orientations can form.
 
     Parameters
@@ -349,6 +349,8 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     dense : bool, optional
         Keep every cost (True) or only candidates (False); by default dense
         while the blocks fit in :data:`DENSE_LIMIT_BYTES`.
+    progress : callable, optional
+        Called as ``progress("seams", done, total)`` per computed chunk.
 
     Returns
     -------
@@ -381,6 +383,8 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     cand_cost = np.full((4 * n, k), np.inf, np.float32)
     chunk = max(1, CHUNK_BYTES // (4 * max(n, 1)))
     tiles = np.arange(n)
+    n_chunks = len(unique) * ((n + chunk - 1) // chunk)
+    done = 0
     for idx, (a, b, f) in enumerate(unique):
         rv_a = rows_ok[a] if masked else None
         rv_b = rows_ok[b] if masked else None
@@ -400,6 +404,9 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
                 new = _topk(blk, row_codes, k, axis=0)
                 cslots = 4 * tiles + b
                 cand[cslots], cand_cost[cslots] = _merge_topk(cand[cslots], cand_cost[cslots], *new, k)
+            done += 1
+            if progress is not None:
+                progress("seams", done, n_chunks)
     cand[~np.isfinite(cand_cost)] = -1
     second = np.where(np.isfinite(cand_cost[:, 1]), cand_cost[:, 1], 0).astype(np.float32)
     finite = np.where(np.isfinite(cand_cost), cand_cost, -np.inf)

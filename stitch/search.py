@@ -41,6 +41,7 @@ __all__ = [
     "candidate_shapes",
     "get_search",
     "search_placement",
+    "side_confidence",
     "tile_confidence",
 ]
 
@@ -109,9 +110,8 @@ class SearchResult:
     cost : float
         Total seam cost of the best placement.
     best_history, mean_history : tuple of float
-        Best and mean search objective per generation (empty for greedy):
-        the total seam cost less a constant per seam (see
-        :func:`stitch._kernels.fitness`).
+        Total seam cost of the best placement and mean over the population,
+        per generation (empty for greedy).
     generations : int
     strategy : str
     shape_scores : dict
@@ -366,7 +366,7 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
     rng : {numpy.random.Generator, int}, optional
         Source of every random choice.
     progress : callable, optional
-        Called as ``progress(generation, best_cost, mean_cost)``.
+        Called as ``progress("search", generation, max_generations, detail)``.
     pins : Pins, optional
         Tiles that never move.
     holes : bool, optional
@@ -464,16 +464,19 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         population, parts, costs = new_pop, new_parts, np.array(new_costs)
         generation += 1
         gen_best = float(costs.min())
-        best_hist.append(gen_best)
-        mean_hist.append(float(costs.mean()))
+        raw = [problem.total_cost(g) for g in population]
+        best_hist.append(raw[int(np.argmin(costs))])
+        mean_hist.append(float(np.mean(raw)))
         if gen_best < best_cost - 1e-9 * max(1.0, abs(best_cost)):
             best_cost = gen_best
             stale = 0
         else:
             stale += 1
         if progress is not None:
-            progress(generation, gen_best, mean_hist[-1])
+            progress("search", generation, max_gen, f"best seam cost {best_hist[-1]:,.0f}")
 
+    if progress is not None:  # stopped early: show the stage as done
+        progress("search", generation, generation, f"best seam cost {best_hist[-1]:,.0f}" if best_hist else "")
     order = np.argsort(costs, kind="stable")
     best = population[order[0]]
     best_parts = parts[order[0]]
@@ -508,6 +511,33 @@ def get_search(name):
     settings, rng, progress, pins)`` and returns a :class:`SearchResult`.
     """
     return _REGISTRY.get(name)
+
+
+def side_confidence(placement, table):
+    """Seam confidence on each side of every tile as it sits in the mosaic.
+
+    Returns
+    -------
+    ndarray, shape (n_tiles, 4)
+        Columns: top, right, bottom, left in the mosaic; NaN at the border,
+        next to a hole, or for unplaced tiles.
+    """
+    from .layout import STEPS, facing_side
+
+    n = len(placement.names)
+    out = np.full((n, 4), np.nan)
+    grid, orient = placement.grid()
+    rows, cols = placement.shape
+    for i in np.flatnonzero(placement.placed):
+        r, c, o = placement.rows[i], placement.cols[i], placement.orientations[i]
+        for d, (dr, dc) in enumerate(STEPS):
+            rr, cc = r + dr, c + dc
+            if 0 <= rr < rows and 0 <= cc < cols and grid[rr, cc] >= 0:
+                j, oj = grid[rr, cc], orient[rr, cc]
+                sa = 4 * i + int(facing_side(o % 4, o >= 4, d))
+                sb = 4 * j + int(facing_side(oj % 4, oj >= 4, (d + 2) % 4))
+                out[i, d] = float(table.confidence(sa, sb, int((o >= 4) != (oj >= 4))))
+    return out
 
 
 def tile_confidence(placement, table, agreement=None):

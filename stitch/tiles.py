@@ -291,7 +291,7 @@ def _describe(shape):
     return f"{w}x{h} px, {count} band{'s' if count != 1 else ''}, {dtype}"
 
 
-def read_tileset(folder, *, recursive=False, exclude=()):
+def read_tileset(folder, *, recursive=False, exclude=(), progress=None):
     """Read every tile in ``folder`` down to its edge strips.
 
     Parameters
@@ -302,6 +302,8 @@ def read_tileset(folder, *, recursive=False, exclude=()):
         Also read tiles in sub-folders.
     exclude : iterable of path-like, optional
         Files to leave out (the run's own outputs).
+    progress : callable, optional
+        Called as ``progress("read", done, total)``.
 
     Returns
     -------
@@ -379,6 +381,8 @@ def read_tileset(folder, *, recursive=False, exclude=()):
         for s, (strip, vstrip) in enumerate(zip(side_strips(pixels), side_strips(~mask[None]))):
             sides[s][i] = strip
             valid[s][i] = vstrip[..., 0]
+        if progress is not None:
+            progress("read", i + 1, n)
     if blank.any():
         log.info("%d blank tile(s) (constant or all nodata): %s", blank.sum(),
                  ", ".join(np.asarray(names)[blank][:5]))

@@ -1,0 +1,116 @@
+"""Preflight: is a tile folder usable, and what would ``solve`` cost?
+
+Reads headers and edge strips only, never writes. Reports tile count, size,
+bands, data type, nodata, blank and duplicate tiles (identical on all four
+edges), surviving georeferencing and whether it agrees, plausible grid
+shapes, an estimate of run time and memory, and the problems that would stop
+``solve``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+
+from .errors import StitchError
+from .georef import anchor_cells
+from .search import candidate_shapes
+from .tiles import read_tileset
+
+__all__ = ["Inspection", "inspect_tiles"]
+
+
+@dataclass(frozen=True)
+class Inspection:
+    """Findings of :func:`inspect_tiles`; ``problems`` empty means solve can run."""
+
+    folder: str
+    tiles: int = 0
+    tile_size: tuple = ()
+    bands: int = 0
+    dtype: str = ""
+    nodata: float | None = None
+    blank: tuple = ()
+    duplicates: tuple = ()
+    georeferenced: tuple = ()
+    anchors_agree: bool | None = None
+    grid_shapes: tuple = ()
+    estimated_seconds: float = 0.0
+    estimated_memory_mb: float = 0.0
+    problems: tuple = ()
+    notes: tuple = field(default=())
+
+    @property
+    def ok(self):
+        return not self.problems
+
+    def as_dict(self):
+        d = asdict(self)
+        d["ok"] = self.ok
+        return d
+
+
+def _estimate(n, size, bands, quarter=False):
+    """Rough seconds and MB of ``solve`` (from bench/seams.py and bench/solve.py on 2 cores)."""
+    blocks = 10 if quarter else 2
+    seam_s = 4.5e-8 * blocks * n * n * (2 * bands * bands + 2 * size * bands + 2) / 188
+    search_s = 15.0 * (n / 432) if n > 50 else 2.0
+    dense = blocks * n * n * 4 <= 512 * 2**20
+    mem = (blocks * n * n * 4 if dense else 70 * 2**20) / 2**20 + n * 4 * size * 2 * bands * 4 / 2**20 + 250
+    return seam_s + search_s + 5, mem
+
+
+def inspect_tiles(folder, *, recursive=False):
+    """Check a tile folder before solving.
+
+    Returns
+    -------
+    Inspection
+        Never raises for a bad folder: what would stop ``solve`` is listed in
+        ``problems``.
+    """
+    try:
+        ts = read_tileset(folder, recursive=recursive)
+    except StitchError as exc:
+        return Inspection(folder=str(folder), problems=(str(exc),))
+    n = len(ts)
+    problems, notes = [], []
+    if n < 2:
+        problems.append("a single tile: there is nothing to put together")
+    blank = tuple(np.asarray(ts.names)[ts.blank].tolist())
+    if blank and len(blank) == n:
+        problems.append("every tile is blank (constant or all nodata): no seam carries information")
+    elif blank:
+        notes.append(f"{len(blank)} blank tile(s) will be placed with no evidence")
+    groups = {}
+    for i in range(n):
+        if ts.blank[i]:
+            continue
+        h = hashlib.sha1()
+        for s in range(4):
+            h.update(np.ascontiguousarray(ts.edges.sides[s][i]).tobytes())
+        groups.setdefault(h.hexdigest(), []).append(ts.names[i])
+    duplicates = tuple(tuple(v) for v in groups.values() if len(v) > 1)
+    if duplicates:
+        notes.append(f"{len(duplicates)} group(s) of tiles with identical edges: they are interchangeable")
+    georef = tuple(name for name, g in zip(ts.names, ts.georefs) if g is not None)
+    agree = None
+    if georef:
+        try:
+            anchor_cells(ts)
+            agree = True
+        except StitchError as exc:
+            agree = False
+            problems.append(str(exc))
+    else:
+        notes.append("no tile kept georeferencing: give --bounds, --origin or --gcps with --crs")
+    shapes = tuple(f"{r}x{c}" for r, c in candidate_shapes(n)) if n >= 2 else ()
+    seconds, memory = _estimate(n, max(ts.width, ts.height), ts.count)
+    return Inspection(
+        folder=str(folder), tiles=n, tile_size=(ts.width, ts.height), bands=ts.count, dtype=ts.dtype,
+        nodata=ts.nodata, blank=blank, duplicates=duplicates, georeferenced=georef, anchors_agree=agree,
+        grid_shapes=shapes, estimated_seconds=round(seconds, 1), estimated_memory_mb=round(memory),
+        problems=tuple(problems), notes=tuple(notes),
+    )

@@ -1,0 +1,137 @@
+"""Review kit: footprints, preview, convergence plot, summary, HTML page, preflight.
+
+Outside references: RFC 7946 (GeoJSON: WGS 84 longitude/latitude, closed
+linear rings, counter-clockwise exterior rings); PROJ through rasterio for
+the coordinate transform; Debian's Chromium renders the page.
+"""
+
+import json
+import os
+import shutil
+import subprocess
+
+import numpy as np
+import pytest
+from PIL import Image
+from shapely.geometry import LinearRing, shape
+from shapely.ops import unary_union
+from typer.testing import CliRunner
+
+from conftest import jacksboro_dem, skimage_image, write_raster
+from stitch.cli import app
+from stitch.pipeline import SolveOptions, solve
+from stitch.preflight import inspect_tiles
+from stitch.review import tiles_geojson
+
+runner = CliRunner()
+
+
+@pytest.fixture
+def solved(tmp_path, tiles_dir):
+    return solve(tiles_dir, tmp_path / "m.tif")
+
+
+def test_geojson_is_rfc7946_and_tiles_the_mosaic(solved):
+    doc = json.loads(solved.outputs["report_footprints"].read_text())
+    assert doc["type"] == "FeatureCollection" and "crs" not in doc
+    p = solved.placement
+    assert len(doc["features"]) == int(p.placed.sum())
+    for feat in doc["features"]:
+        ring = feat["geometry"]["coordinates"][0]
+        assert ring[0] == ring[-1]  # closed
+        assert LinearRing(ring).is_ccw  # RFC 7946 section 3.1.6
+        lon, lat = np.array(ring).T
+        assert (np.abs(lon) <= 180).all() and (np.abs(lat) <= 90).all()
+        props = feat["properties"]
+        assert set(props) >= {"tile", "row", "col", "rotation", "mirrored", "confidence", "seam_top", "seam_right",
+                              "seam_bottom", "seam_left", "pinned", "blank", "low_confidence"}
+    # In the mosaic's own CRS the footprints cover its bounds exactly, without overlap.
+    native = json.loads(tiles_geojson(solved, native=True))
+    assert native["crs"]["properties"]["name"] == "EPSG:32630"
+    polys = [shape(f["geometry"]) for f in native["features"]]
+    union = unary_union(polys)
+    t = solved.georeference.transform
+    area = abs(t.a * t.e - t.b * t.d) * p.shape[0] * solved.tileset.height * p.shape[1] * solved.tileset.width
+    assert union.area == pytest.approx(area, rel=1e-9)
+    assert sum(q.area for q in polys) == pytest.approx(union.area, rel=1e-9)
+
+
+def test_pngs_have_the_expected_size_and_content(solved):
+    prev = np.asarray(Image.open(solved.outputs["report_preview"]))
+    p, ts = solved.placement, solved.tileset
+    assert prev.shape[1] == p.shape[1] * ts.width and prev.shape[0] == p.shape[0] * ts.height + 28
+    assert prev.std() > 10
+    conv = np.asarray(Image.open(solved.outputs["report_convergence"]))
+    assert conv.shape[:2] == (360, 720) and conv.std() > 10
+
+
+def test_summary_best_cost_never_rises(solved):
+    summary = json.loads(solved.outputs["report_summary"].read_text())
+    best = summary["search"]["best_cost"]
+    assert len(best) == summary["search"]["generations"] > 0
+    assert all(b2 <= b1 + 1e-6 * abs(b1) for b1, b2 in zip(best, best[1:]))
+    assert summary["caution"].startswith("A reconstructed mosaic is not survey-grade")
+    assert summary["options"]["seed"] == 0 and summary["versions"]["gdal"]
+
+
+def _chromium():
+    return shutil.which("chromium") or shutil.which("chromium-browser")
+
+
+def test_index_html_renders_in_headless_chromium(tmp_path, solved):
+    browser = _chromium()
+    if browser is None:
+        if os.environ.get("CI"):
+            pytest.fail("chromium is missing; .ci/run installs Debian's chromium")
+        pytest.skip("chromium is not installed")
+    page = solved.outputs["report_page"]
+    text = page.read_text()
+    assert "http://" not in text and "https://" not in text  # self-contained
+    dom = subprocess.run(
+        [browser, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
+         "--disable-component-update", "--disable-sync", f"--user-data-dir={tmp_path / 'profile'}",
+         "--dump-dom", page.as_uri()],
+        capture_output=True, text=True, timeout=120, check=True,
+    ).stdout
+    assert '<table id="flagged">' in dom
+    body = dom.split('<table id="flagged">')[1].split("</table>")[0]
+    flagged = solved.flagged
+    assert body.count("<tr>") == 1 + max(1, len(flagged))
+    for name in flagged:
+        assert name in body
+    assert "not survey-grade" in dom
+
+
+def _folder(tmp_path, arrays):
+    d = tmp_path / "f"
+    d.mkdir(parents=True)
+    for k, a in enumerate(arrays):
+        write_raster(d / f"t{k:02d}.tif", a)
+    return d
+
+
+def test_inspect_good_folder(tmp_path, tiles_dir):
+    found = inspect_tiles(tiles_dir)
+    assert found.ok and found.tiles == 100 and "10x10" in found.grid_shapes
+    assert found.georeferenced and found.anchors_agree is True
+    r = runner.invoke(app, ["inspect", str(tiles_dir), "--json"])
+    assert r.exit_code == 0 and json.loads(r.output)["ok"] is True
+
+
+def test_inspect_mixed_sizes_fails(tmp_path):
+    img = skimage_image("camera")
+    d = _folder(tmp_path, [img[:, :32, :32], img[:, 32:64, :32], img[:, :16, :16]])
+    found = inspect_tiles(d)
+    assert not found.ok and "differ from the others" in found.problems[0]
+    r = runner.invoke(app, ["inspect", str(d)])
+    assert r.exit_code == 1 and "solve would fail" in r.output
+
+
+def test_inspect_blank_heavy_and_duplicates(tmp_path):
+    dem = jacksboro_dem()[None, :32, :32]
+    arrays = [np.zeros_like(dem)] * 5 + [dem, dem, dem[:, ::-1, :].copy()]
+    found = inspect_tiles(_folder(tmp_path, arrays))
+    assert found.ok
+    assert len(found.blank) == 5 and found.duplicates == (("t05.tif", "t06.tif"),)
+    all_blank = inspect_tiles(_folder(tmp_path / "b", [np.zeros_like(dem)] * 4))
+    assert not all_blank.ok and "blank" in all_blank.problems[0]
