@@ -168,6 +168,7 @@ def solve(
     report: Annotated[Optional[Path], typer.Option(help="Report folder (default: OUT's stem + _report).")] = None,
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
     cog: Annotated[bool, typer.Option("--cog", help="Write a Cloud Optimized GeoTIFF (GDAL's COG driver).")] = False,
+    max_tile_pixels: Annotated[int, typer.Option(help="Refuse tiles whose header claims more pixels.")] = 64_000_000,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,
@@ -188,6 +189,7 @@ def solve(
         size = None if pixel_size is None else (pixel_size, pixel_size_y or pixel_size)
         options = SolveOptions(
             grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive, pins=pins, cog=cog,
+            max_tile_pixels=max_tile_pixels,
             search=SearchSettings(strategy=search, population=population, generations=generations,
                                   time_limit=time_limit),
             georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs,

@@ -34,7 +34,7 @@ from .mosaic import write_mosaic
 from .report import check_report, report_paths, write_report
 from .search import Pins, SearchSettings, search_placement, side_confidence, tile_confidence
 from .seams import DEFAULT_MEASURE, score_seams
-from .tiles import read_tileset
+from .tiles import MAX_TILE_PIXELS, read_tileset
 
 __all__ = ["SolveOptions", "SolveResult", "default_report_dir", "place_tiles", "solve"]
 
@@ -68,6 +68,8 @@ class SolveOptions:
         Tiles below it are flagged for review.
     cog : bool
         Write the mosaic as a Cloud Optimized GeoTIFF.
+    max_tile_pixels : int
+        Tiles whose header claims more pixels are refused before reading.
     pins : tuple of (name, row, col)
         Tiles whose grid cell is known; they never move. Without pins, tiles
         that kept georeferencing are pinned relative to each other.
@@ -85,6 +87,7 @@ class SolveOptions:
     confidence_threshold: float = 0.5
     pins: tuple = ()
     cog: bool = False
+    max_tile_pixels: int = MAX_TILE_PIXELS
 
     def __post_init__(self):
         if self.grid is not None and (len(self.grid) != 2 or min(self.grid) < 1):
@@ -150,6 +153,32 @@ class SolveResult:
         p = self.placement
         low = p.placed & (np.nan_to_num(p.confidence, nan=0.0) < self.options.confidence_threshold)
         return [p.names[i] for i in np.flatnonzero(low)]
+
+
+def _inside(path, folder):
+    try:
+        Path(path).resolve().relative_to(Path(folder).resolve())
+        return True
+    except ValueError:
+        return False
+
+
+def _duplicate_notes(tileset):
+    """Warnings for tiles whose four edges are identical (interchangeable)."""
+    groups = {}
+    for i in np.flatnonzero(~tileset.blank):
+        key = b"".join(np.ascontiguousarray(tileset.edges.sides[s][i]).tobytes() for s in range(4))
+        groups.setdefault(key, []).append(tileset.names[i])
+    dups = [g for g in groups.values() if len(g) > 1]
+    if not dups:
+        return []
+    if len(dups) == 1 and len(dups[0]) == int((~tileset.blank).sum()):
+        msg = "all tiles are identical: any placement is as good as another"
+    else:
+        shown = "; ".join(", ".join(g[:3]) for g in dups[:3])
+        msg = f"{sum(len(g) for g in dups)} tiles have identical edges and are interchangeable ({shown})"
+    warnings.warn(msg, UserWarning, stacklevel=3)
+    return [msg]
 
 
 def default_report_dir(output):
@@ -267,14 +296,24 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     report_dir = Path(report_dir) if report_dir is not None else default_report_dir(output)
     if output.suffix.lower() not in (".tif", ".tiff"):
         raise OptionError(f"output {str(output)!r} must end in .tif or .tiff (a GeoTIFF is written)")
+    if _inside(output, tiles_dir) and "mosaic" not in output.stem.lower():
+        raise OptionError(
+            f"output {str(output)!r} is inside the tile folder and could pass for a tile; write it elsewhere "
+            "or put 'mosaic' in its name"
+        )
     check_outputs([output, world_file_path(output)], overwrite=overwrite)
     check_report(report_dir, overwrite=overwrite)
 
     timings, notes = {}, []
     t0 = time.perf_counter()
-    tileset = read_tileset(tiles_dir, recursive=options.recursive, exclude=[output], progress=progress)
+    tileset = read_tileset(tiles_dir, recursive=options.recursive, exclude=[output], progress=progress,
+                           max_tile_pixels=options.max_tile_pixels)
     if len(tileset) < 2:
         raise TileSetError(f"{str(tiles_dir)!r} holds a single tile; there is nothing to put together")
+    if tileset.blank.all():
+        raise TileSetError(f"every tile in {str(tiles_dir)!r} is blank (constant or all nodata); "
+                           "no seam can be matched")
+    notes.extend(_duplicate_notes(tileset))
     timings["read"] = time.perf_counter() - t0
 
     t0 = time.perf_counter()

@@ -15,10 +15,13 @@ neutral score: the median of their block, so they neither attract nor repel.
 from __future__ import annotations
 
 import logging
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
 from numba import njit, prange
+from threadpoolctl import threadpool_limits
 
 from .errors import OptionError
 from .layout import facing_side
@@ -46,6 +49,9 @@ DENSE_LIMIT_BYTES = 512 * 2**20
 
 #: Largest chunk of a block computed at once, in bytes of float32 costs.
 CHUNK_BYTES = 64 * 2**20
+
+#: Rows of a chunk given to one worker thread (fixed, for reproducible sums).
+ROWS_PER_PIECE = 512
 
 
 def band_scaling(sides, valid=None):
@@ -256,6 +262,25 @@ def _topk(block, codes, k, *, axis):
     return codes[np.maximum(idx, 0)], val
 
 
+def _rows_in_parallel(fn, left, right, left_valid, right_valid, flip, pool):
+    """A block computed in fixed pieces of rows, each with one BLAS thread.
+
+    The pieces do not depend on how many threads run them, so the costs are
+    bit-identical whatever the machine's core count (multi-threaded BLAS sums
+    in an order that depends on the thread count).
+    """
+    pieces = [(r0, min(len(left), r0 + ROWS_PER_PIECE)) for r0 in range(0, len(left), ROWS_PER_PIECE)]
+
+    def one(piece):
+        r0, r1 = piece
+        return seam_block(fn, left[r0:r1], right, None if left_valid is None else left_valid[r0:r1],
+                          right_valid, flip=flip)
+
+    if len(pieces) == 1:
+        return one(pieces[0])
+    return np.concatenate(list(pool.map(one, pieces)), axis=0)
+
+
 @dataclass(frozen=True, eq=False)
 class SeamTable:
     """Seam costs for every pair of sides the search may join.
@@ -385,28 +410,31 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     tiles = np.arange(n)
     n_chunks = len(unique) * ((n + chunk - 1) // chunk)
     done = 0
-    for idx, (a, b, f) in enumerate(unique):
-        rv_a = rows_ok[a] if masked else None
-        rv_b = rows_ok[b] if masked else None
-        col_codes = 2 * (4 * tiles + b) + f
-        for r0 in range(0, n, chunk):
-            r1 = min(n, r0 + chunk)
-            blk = seam_block(fn, sides[a][r0:r1], sides[b], None if rv_a is None else rv_a[r0:r1], rv_b, flip=bool(f))
-            blk = _neutralize(blk, dead[r0:r1, a], dead[:, b])
-            blk[np.arange(r1 - r0), np.arange(r0, r1)] = np.inf  # a tile never meets itself
-            if dense:
-                blocks[idx, r0:r1] = blk
-            slots = 4 * tiles[r0:r1] + a
-            new = _topk(blk, col_codes, k, axis=1)
-            cand[slots], cand_cost[slots] = _merge_topk(cand[slots], cand_cost[slots], *new, k)
-            if a != b:
-                row_codes = 2 * (4 * tiles[r0:r1] + a) + f
-                new = _topk(blk, row_codes, k, axis=0)
-                cslots = 4 * tiles + b
-                cand[cslots], cand_cost[cslots] = _merge_topk(cand[cslots], cand_cost[cslots], *new, k)
-            done += 1
-            if progress is not None:
-                progress("seams", done, n_chunks)
+    pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
+    with threadpool_limits(limits=1, user_api="blas"), pool:
+        for idx, (a, b, f) in enumerate(unique):
+            rv_a = rows_ok[a] if masked else None
+            rv_b = rows_ok[b] if masked else None
+            col_codes = 2 * (4 * tiles + b) + f
+            for r0 in range(0, n, chunk):
+                r1 = min(n, r0 + chunk)
+                blk = _rows_in_parallel(fn, sides[a][r0:r1], sides[b], None if rv_a is None else rv_a[r0:r1], rv_b,
+                                        bool(f), pool)
+                blk = _neutralize(blk, dead[r0:r1, a], dead[:, b])
+                blk[np.arange(r1 - r0), np.arange(r0, r1)] = np.inf  # a tile never meets itself
+                if dense:
+                    blocks[idx, r0:r1] = blk
+                slots = 4 * tiles[r0:r1] + a
+                new = _topk(blk, col_codes, k, axis=1)
+                cand[slots], cand_cost[slots] = _merge_topk(cand[slots], cand_cost[slots], *new, k)
+                if a != b:
+                    row_codes = 2 * (4 * tiles[r0:r1] + a) + f
+                    new = _topk(blk, row_codes, k, axis=0)
+                    cslots = 4 * tiles + b
+                    cand[cslots], cand_cost[cslots] = _merge_topk(cand[cslots], cand_cost[cslots], *new, k)
+                done += 1
+                if progress is not None:
+                    progress("seams", done, n_chunks)
     cand[~np.isfinite(cand_cost)] = -1
     second = np.where(np.isfinite(cand_cost[:, 1]), cand_cost[:, 1], 0).astype(np.float32)
     finite = np.where(np.isfinite(cand_cost), cand_cost, -np.inf)

@@ -38,6 +38,7 @@ __all__ = [
     "TileGeoref",
     "TileSet",
     "find_tiles",
+    "is_own_output",
     "orient",
     "read_tile",
     "read_tileset",
@@ -58,6 +59,10 @@ _WORLD_SUFFIXES = {
     ".jpg": (".jgw", ".jpgw", ".wld"),
     ".jpeg": (".jgw", ".jpegw", ".wld"),
 }
+
+#: Endings of sidecar files that belong to tiles (not reported as skipped).
+_SIDECARS = {".tfw", ".tifw", ".tiffw", ".pgw", ".pngw", ".jgw", ".jpgw", ".jpegw", ".wld", ".prj", ".xml", ".ovr",
+             ".csv", ".json", ".geojson", ".html", ".txt", ".md", ".py"}
 
 #: Largest tile GDAL may be asked to read, in pixels; larger headers are refused
 #: before any pixel is read (a corrupt header can claim terabytes).
@@ -198,8 +203,33 @@ class TileSet:
         return read_tile(self.folder / self.names[index])
 
 
+def is_own_output(path):
+    """True for files stitch wrote: mosaics (tagged ``STITCH_CAUTION``) and report files.
+
+    They are never taken as tiles, so a mosaic written into the tile folder
+    is not read back on a later run.
+    """
+    path = Path(path)
+    if (path.parent / "summary.json").is_file() and path.name in ("preview.png", "convergence.png"):
+        return True
+    if path.suffix.lower() in (".tif", ".tiff"):
+        try:
+            with _open(path) as src:
+                return _is_own_mosaic(src)
+        except RasterReadError:
+            return False
+    return False
+
+
+def _is_own_mosaic(src):
+    return "STITCH_CAUTION" in src.tags()
+
+
 def find_tiles(folder, *, recursive=False, exclude=()):
     """Raster files in ``folder`` by their ending, sorted by name.
+
+    Hidden files, stitch's own outputs (see :func:`is_own_output`) and files
+    without a raster ending are left out; the last are counted in the log.
 
     Parameters
     ----------
@@ -218,12 +248,19 @@ def find_tiles(folder, *, recursive=False, exclude=()):
         raise TileSetError(f"tile folder {str(folder)!r} does not exist or is not a folder")
     excluded = {Path(p).resolve() for p in exclude}
     pattern = "**/*" if recursive else "*"
-    found = []
+    found, skipped = [], []
     for path in folder.glob(pattern):
-        if path.name.startswith(".") or not path.is_file():
+        if path.name.startswith(".") or not path.is_file() or path.resolve() in excluded:
             continue
-        if path.suffix.lower() in RASTER_SUFFIXES and path.resolve() not in excluded:
-            found.append(path)
+        if path.suffix.lower() not in RASTER_SUFFIXES:
+            if path.suffix.lower() not in _SIDECARS:
+                skipped.append(path.name)
+            continue
+        if path.suffix.lower() == ".png" and is_own_output(path):
+            continue
+        found.append(path)
+    if skipped:
+        log.warning("skipping %d file(s) that are not rasters: %s", len(skipped), ", ".join(sorted(skipped)[:5]))
     return sorted(found, key=lambda p: p.relative_to(folder).as_posix())
 
 
@@ -291,7 +328,7 @@ def _describe(shape):
     return f"{w}x{h} px, {count} band{'s' if count != 1 else ''}, {dtype}"
 
 
-def read_tileset(folder, *, recursive=False, exclude=(), progress=None):
+def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile_pixels=MAX_TILE_PIXELS):
     """Read every tile in ``folder`` down to its edge strips.
 
     Parameters
@@ -304,6 +341,8 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None):
         Files to leave out (the run's own outputs).
     progress : callable, optional
         Called as ``progress("read", done, total)``.
+    max_tile_pixels : int, optional
+        Refuse tiles whose header claims more pixels, before reading any.
 
     Returns
     -------
@@ -326,13 +365,16 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None):
     names = tuple(p.relative_to(folder).as_posix() for p in paths)
 
     # Headers first, so a mixed folder fails before any pixel is read.
-    shapes, nodatas, georefs, colorinterp = [], [], [], ()
+    shapes, nodatas, georefs, colorinterp, own = [], [], [], (), []
     for path in paths:
         with _open(path) as src:
-            if src.width * src.height > MAX_TILE_PIXELS:
+            if _is_own_mosaic(src):
+                own.append(path)
+                continue
+            if src.width * src.height > max_tile_pixels:
                 raise TileSetError(
                     f"tile {path.name!r} claims {src.width}x{src.height} pixels, more than the "
-                    f"{MAX_TILE_PIXELS:,} a tile may have; is it really a tile?"
+                    f"{max_tile_pixels:,} a tile may have; remove it, or raise --max-tile-pixels if it is real"
                 )
             shapes.append((src.width, src.height, src.count, src.dtypes[0]))
             if len(set(src.dtypes)) > 1:
@@ -341,6 +383,12 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None):
             georefs.append(_tile_georef(path, src))
             if not colorinterp:
                 colorinterp = tuple(src.colorinterp)
+    if own:
+        log.info("leaving out %s: written by stitch", ", ".join(p.name for p in own))
+        paths = [p for p in paths if p not in own]
+        names = tuple(p.relative_to(folder).as_posix() for p in paths)
+        if not paths:
+            raise TileSetError(f"no tiles in {str(folder)!r}: only mosaics written by stitch")
     counts = {}
     for s in shapes:
         counts[s] = counts.get(s, 0) + 1

@@ -1,0 +1,389 @@
+"""Bad input never costs data: the error matrix, atomic outputs, interrupts, fuzzed parsers.
+
+Every row runs the CLI as a user would and checks the exact exit code, a
+one-line message naming the file or option, no traceback, no partial output,
+and every input file byte-identical afterwards.
+"""
+
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+import rasterio
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from typer.testing import CliRunner
+
+from conftest import checksums, skimage_image, write_raster
+from stitch.cli import app
+from stitch.errors import StitchError
+from stitch.puzzles import cut_raster
+
+runner = CliRunner()
+
+
+def _run(args, inputs):
+    before = checksums(inputs)
+    r = runner.invoke(app, [str(a) for a in args])
+    assert checksums(inputs) == before, "an input file changed"
+    assert "Traceback" not in r.output
+    return r
+
+
+def _last_line(r):
+    lines = [ln for ln in r.output.strip().splitlines() if ln.startswith("error:")]
+    assert len(lines) == 1, r.output
+    return lines[0]
+
+
+def _tiles(folder, n=4, size=28, dtype=None):
+    folder.mkdir(parents=True, exist_ok=True)
+    img = skimage_image("coffee")
+    for k in range(n):
+        t = img[:, 100:100 + size, 100 + size * k:100 + size * (k + 1)]
+        write_raster(folder / f"t{k}.tif", t.astype(dtype) if dtype else t)
+    return folder
+
+
+def _no_outputs(folder):
+    left = [p.name for p in Path(folder).iterdir() if p.name.startswith(".") or p.suffix in (".tif", ".tfw")]
+    return not [n for n in left if "partial" in n or n.startswith("m.")]
+
+
+CASES = {}
+
+
+def case(name):
+    def deco(fn):
+        CASES[name] = fn
+        return fn
+    return deco
+
+
+@case("empty folder")
+def _(tmp):
+    (tmp / "in").mkdir()
+    return tmp / "in", [], 1, "no tiles in"
+
+
+@case("non-raster files only")
+def _(tmp):
+    d = tmp / "in"
+    d.mkdir()
+    (d / "notes.docx").write_text("x")
+    (d / "readme.pdf").write_text("x")
+    return d, [], 1, "no tiles in"
+
+
+@case("truncated TIFF")
+def _(tmp):
+    d = _tiles(tmp / "in")
+    data = (d / "t1.tif").read_bytes()
+    (d / "t1.tif").write_bytes(data[: len(data) // 3])
+    return d, [], 1, "t1.tif"
+
+
+@case("file with a raster ending that is not a raster")
+def _(tmp):
+    d = _tiles(tmp / "in")
+    (d / "fake.png").write_text("this is not a PNG")
+    return d, [], 1, "fake.png"
+
+
+@case("mixed tile sizes")
+def _(tmp):
+    d = _tiles(tmp / "in")
+    write_raster(d / "small.tif", skimage_image("coffee")[:, :20, :20])
+    return d, [], 1, "small.tif (20x20 px"
+
+
+@case("mixed band counts")
+def _(tmp):
+    d = _tiles(tmp / "in")
+    write_raster(d / "gray.tif", skimage_image("camera")[:, :28, :28])
+    return d, [], 1, "gray.tif (28x28 px, 1 band"
+
+
+@case("mixed data types")
+def _(tmp):
+    d = _tiles(tmp / "in")
+    write_raster(d / "wide.tif", skimage_image("coffee")[:, :28, :28].astype(np.uint16))
+    return d, [], 1, "wide.tif (28x28 px, 3 bands, uint16)"
+
+
+@case("a single tile")
+def _(tmp):
+    return _tiles(tmp / "in", n=1), [], 1, "single tile"
+
+
+@case("all tiles blank")
+def _(tmp):
+    d = tmp / "in"
+    d.mkdir()
+    for k in range(4):
+        write_raster(d / f"b{k}.tif", np.zeros((1, 16, 16), np.uint8))
+    return d, [], 1, "every tile"
+
+
+@case("header claims enormous dimensions")
+def _(tmp):
+    d = _tiles(tmp / "in")
+    with rasterio.open(d / "huge.tif", "w", driver="GTiff", width=100_000, height=100_000, count=1, dtype="uint8",
+                       tiled=True, sparse_ok=True) as dst:
+        pass
+    return d, [], 1, "huge.tif' claims 100000x100000 pixels"
+
+
+@case("grid too small")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--grid", "1x3"], 1, "--grid 1x3 holds 3 tiles"
+
+
+@case("invalid CRS")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--bounds", 0, 0, 1, 1, "--crs", "EPSG:0"], 1, "--crs 'EPSG:0'"
+
+
+@case("control file with a missing column")
+def _(tmp):
+    f = tmp / "gcp.csv"
+    f.write_text("tile,col,row,x\nt0.tif,1,1,3\n")
+    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "gcp.csv' lacks column(s) y"
+
+
+@case("control file with non-numeric values")
+def _(tmp):
+    f = tmp / "gcp.csv"
+    f.write_text("tile,col,row,x,y\nt0.tif,1,one,3,4\n")
+    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "gcp.csv line 2"
+
+
+@case("control point on an unknown tile")
+def _(tmp):
+    f = tmp / "gcp.csv"
+    f.write_text("tile,col,row,x,y\nnope.tif,1,1,3,4\nt0.tif,5,5,9,9\n")
+    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "'nope.tif', which is not placed"
+
+
+@case("collinear control points")
+def _(tmp):
+    f = tmp / "gcp.csv"
+    f.write_text("tile,col,row,x,y\nt0.tif,1,1,1,1\nt0.tif,2,2,2,2\nt0.tif,3,3,3,3\n")
+    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "one line"
+
+
+@case("output folder does not exist")
+def _(tmp):
+    return _tiles(tmp / "in"), {"output": tmp / "missing" / "m.tif"}, 1, "does not exist; create it first"
+
+
+@case("output folder is a file")
+def _(tmp):
+    (tmp / "afile").write_text("x")
+    return _tiles(tmp / "in"), {"output": tmp / "afile" / "m.tif"}, 1, "does not exist"
+
+
+@case("output inside the tile folder with a tile-like name")
+def _(tmp):
+    d = _tiles(tmp / "in")
+    return d, {"output": d / "t9.tif"}, 1, "inside the tile folder"
+
+
+@case("existing output without --overwrite")
+def _(tmp):
+    (tmp / "m.tif").write_bytes(b"keep me")
+    return _tiles(tmp / "in"), [], 1, "won't be replaced without --overwrite"
+
+
+def _anchored(tmp, **change):
+    src = write_raster(tmp / "src.tif", skimage_image("coffee")[:, :112, :112],
+                       transform=rasterio.transform.from_origin(431000, 5800000, 0.5, 0.5), crs="EPSG:32630")
+    cut = cut_raster(src, tmp / "in", 28, shuffle=True, strip_georef=True, keep_georef=2, seed=1)
+    with rasterio.open(tmp / "in" / cut.georeferenced[1], "r+") as dst:
+        if "crs" in change:
+            dst.crs = change["crs"]
+        if "shift" in change:
+            dst.transform = dst.transform @ rasterio.Affine.translation(change["shift"], 0)
+    (tmp / "src.tif").unlink()
+    return tmp / "in"
+
+
+@case("anchors in different CRSs")
+def _(tmp):
+    return _anchored(tmp, crs="EPSG:32631"), [], 1, "different CRSs"
+
+
+@case("anchors on different grids")
+def _(tmp):
+    return _anchored(tmp, shift=3), [], 1, "not on one tile grid"
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_error_matrix(tmp_path, name):
+    folder, extra, code, message = CASES[name](tmp_path)
+    output = tmp_path / "m.tif"
+    if isinstance(extra, dict):
+        output, extra = extra["output"], []
+    existing = output.read_bytes() if output.is_file() else None
+    r = _run(["solve", folder, "-o", output, *extra], tmp_path if folder.parent == tmp_path else folder)
+    assert r.exit_code == code, r.output
+    line = _last_line(r)
+    assert message in line, line
+    if existing is not None:
+        assert output.read_bytes() == existing
+    elif output.parent.is_dir():
+        assert not output.exists()
+    assert not list(tmp_path.rglob(f"*{'stitch-partial'}*"))
+
+
+def test_non_raster_files_are_skipped_with_a_note(tmp_path):
+    d = _tiles(tmp_path / "in", n=4)
+    (d / "field notes.docx").write_text("x")
+    r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
+    assert r.exit_code == 0, r.output
+    assert "skipping 1 file(s) that are not rasters: field notes.docx" in r.output
+
+
+def test_two_tiles_solve(tmp_path):
+    d = _tiles(tmp_path / "in", n=2)
+    r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
+    assert r.exit_code == 0, r.output
+    assert "placed 2 tiles" in r.output
+
+
+def test_identical_and_duplicate_tiles_warn(tmp_path):
+    d = tmp_path / "in"
+    d.mkdir()
+    t = skimage_image("coffee")[:, 100:128, 100:128]
+    for k in range(4):
+        write_raster(d / f"same{k}.tif", t)
+    r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
+    assert r.exit_code == 0, r.output
+    assert "warning: all tiles are identical" in r.output
+
+
+def test_mosaic_in_tile_folder_is_never_read_back(tmp_path):
+    d = _tiles(tmp_path / "in", n=4)
+    assert _run(["solve", d, "-o", d / "my_mosaic.tif"], tmp_path / "nothing").exit_code == 0
+    again = runner.invoke(app, ["solve", str(d), "-o", str(tmp_path / "second.tif")])
+    assert again.exit_code == 0, again.output
+    assert "placed 4 tiles" in again.output
+
+
+def test_verbose_shows_the_traceback(tmp_path):
+    (tmp_path / "in").mkdir()
+    r = runner.invoke(app, ["solve", str(tmp_path / "in"), "-o", str(tmp_path / "m.tif"), "-v"])
+    assert r.exit_code != 0 and isinstance(r.exception, StitchError)
+
+
+def test_write_failure_midway_leaves_nothing(tmp_path, monkeypatch, tiles_dir):
+    """A full disk while writing the mosaic: exit 1, no mosaic, no temporary file."""
+    import rasterio.io
+
+    calls = {"n": 0}
+    real_write = rasterio.io.DatasetWriter.write
+
+    def failing(self, *args, **kwargs):
+        calls["n"] += 1
+        if calls["n"] > 10:
+            raise rasterio.errors.RasterioIOError("No space left on device")
+        return real_write(self, *args, **kwargs)
+
+    monkeypatch.setattr(rasterio.io.DatasetWriter, "write", failing)
+    r = _run(["solve", tiles_dir, "-o", tmp_path / "m.tif"], tiles_dir)
+    assert r.exit_code == 1
+    assert "No space left on device" in _last_line(r)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["coffee_utm.tif", "key.csv", "tiles"]
+
+
+def test_sigint_leaves_no_partial_output_and_exits_130(tmp_path):
+    """Ctrl-C while the search runs: one line, exit 130, nothing written."""
+    src = write_raster(tmp_path / "src.tif", skimage_image("astronaut")[:, :448, :448])
+    cut_raster(src, tmp_path / "t", 28, shuffle=True, rotate=90, seed=1)
+    out = tmp_path / "out"
+    out.mkdir()
+    proc = subprocess.Popen([sys.executable, "-m", "stitch", "solve", str(tmp_path / "t"), "-o", str(out / "m.tif"),
+                             "--rotations", "90", "--generations", "500", "--population", "150"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    time.sleep(6)
+    proc.send_signal(signal.SIGINT)
+    stdout, stderr = proc.communicate(timeout=60)
+    assert proc.returncode == 130, (stdout, stderr)
+    assert stderr.strip().splitlines()[-1].startswith("interrupted")
+    assert "Traceback" not in stderr
+    assert list(out.iterdir()) == []
+
+
+# Fuzzing: parsers raise only the project's own errors.
+
+@settings(max_examples=150, deadline=None)
+@given(st.binary(max_size=200))
+def test_fuzz_world_file_reader(tmp_path_factory, data):
+    from stitch.georef import read_world_file
+
+    f = tmp_path_factory.mktemp("w") / "x.tfw"
+    f.write_bytes(data)
+    try:
+        read_world_file(f)
+    except StitchError:
+        pass
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.text(max_size=300))
+def test_fuzz_control_csv_reader(tmp_path_factory, text):
+    from stitch.control import read_gcps
+
+    f = tmp_path_factory.mktemp("g") / "g.csv"
+    f.write_text("tile,col,row,x,y\n" + text, encoding="utf-8", errors="surrogatepass") if False else \
+        f.write_bytes(("tile,col,row,x,y\n" + text).encode("utf-8", "replace"))
+    try:
+        read_gcps(f)
+    except StitchError:
+        pass
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.text(max_size=40))
+def test_fuzz_grid_and_pin_options(text):
+    """The CLI parsers: usage errors (exit 2) or accepted, never a crash."""
+    import typer
+
+    from stitch.cli import _parse_grid, _parse_pin
+
+    for parse in (_parse_grid, _parse_pin):
+        try:
+            parse(text)
+        except typer.BadParameter:
+            pass
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(st.floats(allow_nan=True, allow_infinity=True), min_size=4, max_size=4))
+def test_fuzz_bounds(values):
+    from stitch.georef import GeorefSpec
+
+    try:
+        GeorefSpec(bounds=tuple(values), crs="EPSG:4326")
+    except StitchError:
+        pass
+
+
+def test_same_seed_same_bytes_across_thread_counts(tmp_path, tiles_dir):
+    """NUMBA_NUM_THREADS=1 and 2 give byte-identical placement.csv and identical pixels."""
+    results = []
+    for threads in ("1", "2"):
+        env = dict(os.environ, NUMBA_NUM_THREADS=threads, OMP_NUM_THREADS=threads, OPENBLAS_NUM_THREADS=threads)
+        out = tmp_path / f"m{threads}.tif"
+        subprocess.run([sys.executable, "-m", "stitch", "solve", str(tiles_dir), "-o", str(out), "--seed", "3", "-q"],
+                       env=env, check=True, timeout=300)
+        with rasterio.open(out) as src:
+            results.append(((tmp_path / f"m{threads}_report" / "placement.csv").read_bytes(), src.read()))
+    assert results[0][0] == results[1][0]
+    np.testing.assert_array_equal(results[0][1], results[1][1])
