@@ -336,12 +336,25 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     if tileset.blank.any():
         notes.append(f"{int(tileset.blank.sum())} blank tile(s) placed with no evidence; check them")
 
-    t0 = time.perf_counter()
-    outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite, cog=options.cog,
-                           progress=progress)
-    timings["write"] = time.perf_counter() - t0
-    outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
-    result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit,
-                         sides, frozenset(pins.tiles))
-    write_report(result, report_dir, overwrite=overwrite)
+    # A run that fails while writing removes what it wrote, so no output of a
+    # failed run looks valid (each file is also written atomically).
+    planned = [output, world_file_path(output), *report_paths(report_dir).values()]
+    before = {p: p.exists() for p in planned}
+    report_existed = report_dir.exists()
+    try:
+        t0 = time.perf_counter()
+        outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite, cog=options.cog,
+                               progress=progress)
+        timings["write"] = time.perf_counter() - t0
+        outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
+        result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit,
+                             sides, frozenset(pins.tiles))
+        write_report(result, report_dir, overwrite=overwrite)
+    except BaseException:
+        for p in planned:
+            if p.exists() and not before[p]:
+                p.unlink()
+        if not report_existed and report_dir.is_dir() and not any(report_dir.iterdir()):
+            report_dir.rmdir()
+        raise
     return result
