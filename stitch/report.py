@@ -158,6 +158,6 @@ def flagged_rows(result):
             why.append("weak seams: " + ", ".join(weak))
         why.append(f"confidence below {threshold}")
         rows.append({"tile": name, "row": int(p.rows[i]), "col": int(p.cols[i]), "rotation": int(p.rotations[i]) * 90,
-                     "mirrored": bool(p.mirrored[i]), "confidence": f"{p.confidence[i]:.2f}", "why": "; ".join(why)})
-    return rows
+                     "mirrored": bool(p.mirrored[i]), "confidence": f"{p.confidence[i]:.3f}", "why": "; ".join(why)})
+    return sorted(rows, key=lambda r: float(r["confidence"]))  # most doubtful first
 

@@ -76,7 +76,7 @@ def band_scaling(sides, valid=None):
     for s, side in enumerate(sides):
         x = side.reshape(-1, bands) if valid is None or valid[s].all() else side[valid[s]]
         total += x.sum(axis=0, dtype=np.float64)
-        total_sq += (x * x).sum(axis=0, dtype=np.float64)
+        total_sq += np.einsum("ij,ij->j", x, x, dtype=np.float64)
         count += len(x)
     mean = total / max(count, 1)
     std = np.sqrt(np.maximum(total_sq / max(count, 1) - mean**2, 0.0))
@@ -95,7 +95,7 @@ def normalize_strips(sides, valid=None):
     mean, scale = band_scaling(sides, valid)
     out = []
     for s, side in enumerate(sides):
-        x = side - mean.astype(np.float32)
+        x = side.astype(np.float32) - mean.astype(np.float32)
         x *= scale.astype(np.float32)
         if valid is not None and not valid[s].all():
             x[~valid[s]] = 0.0

@@ -141,8 +141,8 @@ class TileGeoref:
 class EdgeStrips:
     """The edge strips of every tile, one array per side.
 
-    ``sides[s]`` has shape ``(n_tiles, length, 2, bands)`` and dtype float32,
-    with the layout of :func:`side_strips`. ``valid[s]`` has shape
+    ``sides[s]`` has shape ``(n_tiles, length, 2, bands)``, the tiles' own
+    integer type or float32, with the layout of :func:`side_strips`. ``valid[s]`` has shape
     ``(n_tiles, length, 2)`` and is False where a pixel is nodata or masked.
     """
 
@@ -407,7 +407,9 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
     nodata = next((v for v in nodatas if v is not None), None)
 
     n = len(paths)
-    sides = [np.empty((n, height if s % 2 else width, 2, count), np.float32) for s in range(4)]
+    # Integer strips keep their type (exact in float32 later, and 4x smaller for 8-bit).
+    strip_dtype = np.dtype(dtype) if np.dtype(dtype).kind in "iu" else np.dtype(np.float32)
+    sides = [np.empty((n, height if s % 2 else width, 2, count), strip_dtype) for s in range(4)]
     valid = [np.ones((n, height if s % 2 else width, 2), bool) for s in range(4)]
     blank = np.zeros(n, bool)
     for i, path in enumerate(paths):
@@ -419,11 +421,12 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
                     f"cannot read pixels of tile {path.name!r} (truncated or corrupt?): {exc}; "
                     "remove or replace the file"
                 ) from exc
-        pixels = np.asarray(masked.data, dtype=np.float32)
+        pixels = np.asarray(masked.data, dtype=strip_dtype)
         mask = np.ma.getmaskarray(masked).any(axis=0)
         if nodata is not None and src.nodata is None:
             mask |= (pixels == nodata).all(axis=0)
-        mask |= ~np.isfinite(pixels).all(axis=0)
+        if pixels.dtype.kind == "f":
+            mask |= ~np.isfinite(pixels).all(axis=0)
         good = pixels[:, ~mask]
         blank[i] = good.size == 0 or bool(np.all(good.max(axis=1) == good.min(axis=1)))
         for s, (strip, vstrip) in enumerate(zip(side_strips(pixels), side_strips(~mask[None]))):

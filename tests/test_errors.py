@@ -268,6 +268,14 @@ def test_identical_and_duplicate_tiles_warn(tmp_path):
     assert "warning: all tiles are identical" in r.output
 
 
+def test_duplicate_files_warn_they_are_interchangeable(tmp_path):
+    d = _tiles(tmp_path / "in", n=4)
+    shutil.copy(d / "t1.tif", d / "t1 copy.tif")
+    r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
+    assert r.exit_code == 0, r.output
+    assert "2 tiles have identical edges and are interchangeable (t1 copy.tif, t1.tif)" in r.output
+
+
 def test_mosaic_in_tile_folder_is_never_read_back(tmp_path):
     d = _tiles(tmp_path / "in", n=4)
     assert _run(["solve", d, "-o", d / "my_mosaic.tif"], tmp_path / "nothing").exit_code == 0

@@ -197,3 +197,41 @@ def test_cog_layout_reported_by_gdal(tmp_path):
 
 def from_origin_utm():
     return rio_from_origin(431000.0, 5800000.0, 0.5, 0.5)
+
+
+def test_us_survey_feet_crs_keeps_its_epsg_code(tmp_path, tiles_dir):
+    """A projected CRS in US survey feet (EPSG:2263, NAD83 / New York Long Island (ftUS))."""
+    bounds = (980000.0, 190000.0, 980280.0, 190280.0)
+    opts = SolveOptions(georef=GeorefSpec(bounds=bounds, crs="EPSG:2263"))
+    result = solve(tiles_dir, tmp_path / "m.tif", options=opts)
+    _, _, keys = _geotiff_tags(result.outputs["mosaic"])
+    assert keys[3072] == 2263
+    with rasterio.open(result.outputs["mosaic"]) as out:
+        assert out.transform == rio_from_bounds(*bounds, out.width, out.height)
+
+
+def test_png_anchor_with_world_file_and_prj(tmp_path, utm_raster):
+    """A PNG tile that kept a .pgw world file and a .prj: GDAL reads the sidecar, stitch the .prj."""
+    from stitch.puzzles import cut_raster
+
+    cut = cut_raster(utm_raster, tmp_path / "t", 28, shuffle=True, strip_georef=True, keep_georef=1, fmt="png",
+                     seed=4, key_path=tmp_path / "k.csv")
+    anchor = tmp_path / "t" / cut.georeferenced[0]
+    assert anchor.with_suffix(".pgw").is_file() and anchor.with_suffix(".prj").is_file()
+    result = solve(tmp_path / "t", tmp_path / "m.tif")
+    assert "anchor tile" in result.georeference.source
+    with rasterio.open(utm_raster) as src, rasterio.open(result.outputs["mosaic"]) as out:
+        assert out.crs == src.crs
+        assert out.transform.almost_equals(src.transform, precision=1e-9)
+
+
+def test_corrupt_world_file_makes_the_tile_unreferenced(tmp_path, caplog):
+    from stitch.puzzles import cut_raster
+    from stitch.tiles import read_tileset
+
+    src = write_raster(tmp_path / "s.png", skimage_image("coffee")[:, :56, :56], driver="PNG")
+    cut_raster(src, tmp_path / "t", 28, fmt="png", seed=1)
+    (tmp_path / "t" / "r000_c000.pgw").write_text("0\n0\n0\n0\n100\n200\n")  # zero pixel size
+    with caplog.at_level("WARNING"):
+        ts = read_tileset(tmp_path / "t")
+    assert all(g is None for g in ts.georefs)

@@ -81,6 +81,14 @@ def test_missing_tiles_leave_holes_and_neighbours_stay_right(tmp_path):
     scores = score_placement(p, cut.key)
     assert scores.direct == pytest.approx(95 / 100)  # every present tile in its cell
     assert scores.missing == 5
+    import rasterio
+
+    with rasterio.open(result.outputs["mosaic"]) as out:  # holes are nodata
+        holes = np.argwhere(p.grid()[0] < 0)
+        data = out.read()
+        assert out.nodata is not None and len(holes) == 5
+        for r, c in holes:
+            assert (data[:, r * 28:(r + 1) * 28, c * 28:(c + 1) * 28] == out.nodata).all()
 
 
 def test_search_plugin_through_entry_points(tmp_path, monkeypatch, tiles_dir):
