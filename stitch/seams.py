@@ -50,8 +50,9 @@ DENSE_LIMIT_BYTES = 512 * 2**20
 #: Largest chunk of a block computed at once, in bytes of float32 costs.
 CHUNK_BYTES = 64 * 2**20
 
-#: Rows of a chunk given to one worker thread (fixed, for reproducible sums).
-ROWS_PER_PIECE = 512
+#: Pieces a chunk is split into, one per worker thread. Fixed, not the core
+#: count, so the sums and therefore the costs are the same on any machine.
+PIECES_PER_CHUNK = 2
 
 
 def band_scaling(sides, valid=None):
@@ -269,7 +270,8 @@ def _rows_in_parallel(fn, left, right, left_valid, right_valid, flip, pool):
     bit-identical whatever the machine's core count (multi-threaded BLAS sums
     in an order that depends on the thread count).
     """
-    pieces = [(r0, min(len(left), r0 + ROWS_PER_PIECE)) for r0 in range(0, len(left), ROWS_PER_PIECE)]
+    step = max(1, -(-len(left) // PIECES_PER_CHUNK))
+    pieces = [(r0, min(len(left), r0 + step)) for r0 in range(0, len(left), step)]
 
     def one(piece):
         r0, r1 = piece
