@@ -23,7 +23,7 @@ DROW = np.array([-1, 0, 1, 0], dtype=np.int64)
 DCOL = np.array([0, 1, 0, -1], dtype=np.int64)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def seam_cost(tab, x, ox, d, y, oy):
     """Cost of tile y (orientation oy) lying in direction d of tile x (ox).
 
@@ -37,12 +37,18 @@ def seam_cost(tab, x, ox, d, y, oy):
     idx = bidx[a, b, f]
     if idx < 0:
         return np.inf
+    ka = 4 * x + a
+    kb = 4 * y + b
+    # Read every seam the same way whichever tile asks: a block of a side
+    # against the same side holds [i, j] and [j, i] computed apart, and their
+    # float32 rounding differs; local searches must see one value or they can
+    # cycle.
+    if ka > kb:
+        x, y, a, b, ka, kb = y, x, b, a, kb, ka
     if dense:
         if btr[a, b, f]:
             return blocks[idx, y, x]
         return blocks[idx, x, y]
-    ka = 4 * x + a
-    kb = 4 * y + b
     for q in range(cand.shape[1]):
         c = cand[ka, q]
         if c == 2 * kb + f:
@@ -58,7 +64,7 @@ def seam_cost(tab, x, ox, d, y, oy):
     return max(fallback[ka], fallback[kb])
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def orientation_for(ox, d, t, f):
     """Orientation that makes side t of a tile face back at x (x at ox, looking in d)."""
     my = (1 if ox >= 4 else 0) ^ f
@@ -70,7 +76,7 @@ def orientation_for(ox, d, t, f):
     return my * 4 + r
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _in_extent(r, c, ext, nrows, ncols, box):
     """May a tile go to canvas cell (r, c)? The placed block must stay within
     ``nrows x ncols``, and inside the fixed box when ``box[0] >= 0``."""
@@ -84,7 +90,7 @@ def _in_extent(r, c, ext, nrows, ncols, box):
     return (r1 - r0) < nrows and (c1 - c0) < ncols
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _set(ct, co, ext, cw, cell, tile, o, used):
     ct[cell] = tile
     co[cell] = o
@@ -97,7 +103,7 @@ def _set(ct, co, ext, cw, cell, tile, o, used):
     ext[3] = max(ext[3], c)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def canvas_to_grid(ct, co, ext, nrows, ncols, cw, box):
     """Crop a canvas to an ``nrows x ncols`` grid of tiles and orientations,
     from the fixed box when there is one, else from the placed block."""
@@ -114,7 +120,7 @@ def canvas_to_grid(ct, co, ext, nrows, ncols, cw, box):
     return gt, go
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _start(ct, co, ext, cw, used, nrows, ncols, seed_tile, seed_o, pins):
     """Place the pinned tiles (upright), or else the seed at the canvas centre.
 
@@ -130,7 +136,7 @@ def _start(ct, co, ext, cw, used, nrows, ncols, seed_tile, seed_o, pins):
     return len(pin_t)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _step(cell, d, cw, ch):
     """Canvas index of the cell next to ``cell`` in direction d, or -1 off the canvas."""
     nr = cell // cw + DROW[d]
@@ -140,7 +146,7 @@ def _step(cell, d, cw, ch):
     return nr * cw + nc
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _score_at(ct, co, cw, ch, cell, y, oy, tab, second, bb):
     """Greedy score of tile y (oy) at a free cell: mean confidence of its seams,
     plus 2 when it is the best buddy of every placed neighbour."""
@@ -170,7 +176,7 @@ def _score_at(ct, co, cw, ch, cell, y, oy, tab, second, bb):
     return s
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _best_for_cell(ct, co, cw, ch, cell, used, n, tab, cand, second, bb, allowed, kfree):
     best_s = -np.inf
     best_y = -1
@@ -221,7 +227,7 @@ def _best_for_cell(ct, co, cw, ch, cell, used, n, tab, cand, second, bb, allowed
     return best_y, best_o, best_s
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, kfree, pins):
     """Greedy best-buddy placement (after Paikin & Tal, CVPR 2015).
 
@@ -292,7 +298,7 @@ def greedy(seed_tile, seed_o, nrows, ncols, n, tab, cand, second, bb, allowed, k
     return canvas_to_grid(ct, co, ext, nrows, ncols, cw, pins[3])
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def partners(gt, go, n):
     """Partner code of every side slot in a grid (-1 on the border or by holes)."""
     p = np.full(4 * n, -1, np.int64)
@@ -317,7 +323,7 @@ def partners(gt, go, n):
     return p
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def fitness(gt, go, tab, bonus):
     """What the search minimises: the sum over seams of ``cost - bonus``.
 
@@ -339,7 +345,7 @@ def fitness(gt, go, tab, bonus):
     return total
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3):
     x = ct[cell]
     ox = co[cell]
@@ -366,7 +372,7 @@ def _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3):
     return n1, n2, n3
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed,
               mutation, rseed, pins):
     """Grow a child from two parents (Sholomon, David & Netanyahu, CVPR 2013).
@@ -499,7 +505,7 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, n, tab, cand, bb, allowed
     return canvas_to_grid(ct, co, ext, nrows, ncols, cw, pins[3])
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _cell_cost(gt, go, i, j, tab):
     """Cost of the seams around cell (i, j)."""
     nrows, ncols = gt.shape
@@ -518,7 +524,7 @@ def _cell_cost(gt, go, i, j, tab):
     return total
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _pair_cost(gt, go, i1, j1, i2, j2, tab):
     """Cost of the seams around two cells, a shared seam counted once."""
     total = _cell_cost(gt, go, i1, j1, tab) + _cell_cost(gt, go, i2, j2, tab)
@@ -529,7 +535,7 @@ def _pair_cost(gt, go, i1, j1, i2, j2, tab):
     return total
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
     """Local search: swap tiles and turn them while the total cost drops.
 
@@ -622,7 +628,7 @@ def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
     return moves
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _window_cost(gt, go, r0, c0, h, w, tab):
     """Exact cost of every seam touching the window, each counted once."""
     nrows, ncols = gt.shape
@@ -647,7 +653,7 @@ def _window_cost(gt, go, r0, c0, h, w, tab):
     return total
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _window_settled(gt, go, r0, c0, h, w, bb):
     """True when every seam inside the window joins mutual best buddies."""
     for i in range(r0, r0 + h):
@@ -671,7 +677,7 @@ def _window_settled(gt, go, r0, c0, h, w, bb):
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def permute_windows(gt, go, h, w, perms, tab, fixed, bb):
     """Try every arrangement of the tiles inside each ``h x w`` window.
 

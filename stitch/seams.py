@@ -332,8 +332,13 @@ class SeamTable:
     measure: str
 
     def cost(self, slot_a, slot_b, flip=0):
-        """Cost of joining two side slots (vectorised over arrays)."""
+        """Cost of joining two side slots (vectorised over arrays).
+
+        Symmetric: the pair is always read from its lower slot, as the
+        compiled search reads it.
+        """
         slot_a, slot_b, flip = (np.asarray(v, np.int64) for v in np.broadcast_arrays(slot_a, slot_b, flip))
+        slot_a, slot_b = np.minimum(slot_a, slot_b), np.maximum(slot_a, slot_b)
         sa, sb = slot_a % 4, slot_b % 4
         idx = self.block_index[sa, sb, flip]
         if self.dense:
@@ -342,7 +347,7 @@ class SeamTable:
             i, j = np.where(tr, tb, ta), np.where(tr, ta, tb)
             return np.where(idx >= 0, self.blocks[np.maximum(idx, 0), i, j], np.inf)
         out = np.maximum(self.fallback[slot_a], self.fallback[slot_b]).astype(np.float64)
-        for a, b, f, o in ((slot_a, slot_b, flip, None), (slot_b, slot_a, flip, None)):
+        for a, b, f in ((slot_b, slot_a, flip), (slot_a, slot_b, flip)):  # the lower slot's list wins
             hit = self.candidates[a] == (2 * b + f)[..., None]
             found = hit.any(axis=-1)
             val = np.take_along_axis(self.candidate_costs[a], hit.argmax(axis=-1)[..., None], axis=-1)[..., 0]

@@ -23,7 +23,9 @@ from __future__ import annotations
 import itertools
 import logging
 import math
+import os
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -435,6 +437,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     best_hist, mean_hist = [], []
     stale, generation = 0, 0
     best_cost = costs.min()
+    pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
     while generation < max_gen and stale < settings.patience:
         if deadline is not None and time.perf_counter() > deadline:
             log.info("time limit reached after %d generations", generation)
@@ -447,19 +450,31 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         winners = np.take_along_axis(picks, np.argmin(costs[picks], axis=2)[..., None], axis=2)[..., 0]
         seeds = rng.integers(0, n, size=pop_size - elite)
         rseeds = rng.integers(0, 2**31 - 1, size=pop_size - elite)
-        for (ia, ib), seed, rs in zip(winners, seeds, rseeds):
+
+        def breed(job):
+            (ia, ib), seed, rs = job
             pa_t, pa_o = population[ia]
             at = np.flatnonzero(pa_t == seed)
             seed_o = int(pa_o.flat[at[0]]) if at.size else problem.orientations[0]
             child = problem.crossover(parts[ia], parts[ib], int(seed), seed_o, shape, settings.mutation, int(rs))
+            return child, problem.fitness(child)
+
+        # Children depend only on their parents and their own seed, so running
+        # them on both cores (the kernels release the GIL) changes no result.
+        for child, cost in pool.map(breed, zip(winners, seeds, rseeds)):
             new_pop.append(child)
-            new_costs.append(problem.fitness(child))
+            new_costs.append(cost)
         # Memetic step: polish the most promising children with local search
         # (polishing all of them costs more than it gains).
         children = np.argsort(new_costs[elite:], kind="stable")[: settings.polish] + elite
-        for rank, c in enumerate(children):
+
+        def polish(job):
+            rank, c = job
             problem.polish(new_pop[c], settings.polish_passes, windows=rank == 0)
-            new_costs[c] = problem.fitness(new_pop[c])
+            return c, problem.fitness(new_pop[c])
+
+        for c, cost in pool.map(polish, enumerate(children)):
+            new_costs[c] = cost
         new_parts = [parts[i] for i in order[:elite]] + [K.partners(g[0], g[1], n) for g in new_pop[elite:]]
         population, parts, costs = new_pop, new_parts, np.array(new_costs)
         generation += 1
@@ -475,6 +490,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         if progress is not None:
             progress("search", generation, max_gen, f"best seam cost {best_hist[-1]:,.0f}")
 
+    pool.shutdown()
     if progress is not None:  # stopped early: show the stage as done
         progress("search", generation, generation, f"best seam cost {best_hist[-1]:,.0f}" if best_hist else "")
     order = np.argsort(costs, kind="stable")
