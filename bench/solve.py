@@ -21,7 +21,6 @@ from pathlib import Path
 
 import numpy as np
 
-from stitch import _kernels as K
 from stitch.layout import Placement, allowed_orientations, normalize_frame
 from stitch.puzzles import score_placement
 from stitch.search import SearchSettings, _Problem, search_placement

@@ -209,7 +209,7 @@ def solve(
     if result.control is not None:
         for i, (m, px) in enumerate(zip(result.control.residuals_map, result.control.residuals_px), start=1):
             typer.echo(f"  control point {i}: residual {m:.4g} map units ({px:.3g} px)")
-    for role, path in result.outputs.items():
+    for path in result.outputs.values():
         typer.echo(f"wrote {path}")
     flagged = result.flagged
     if flagged:

@@ -165,11 +165,7 @@ def _inside(path, folder):
 
 def _duplicate_notes(tileset):
     """Warnings for tiles whose four edges are identical (interchangeable)."""
-    groups = {}
-    for i in np.flatnonzero(~tileset.blank):
-        key = b"".join(np.ascontiguousarray(tileset.edges.sides[s][i]).tobytes() for s in range(4))
-        groups.setdefault(key, []).append(tileset.names[i])
-    dups = [g for g in groups.values() if len(g) > 1]
+    dups = tileset.duplicate_groups()
     if not dups:
         return []
     if len(dups) == 1 and len(dups[0]) == int((~tileset.blank).sum()):

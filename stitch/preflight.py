@@ -9,7 +9,6 @@ shapes, an estimate of run time and memory, and the problems that would stop
 
 from __future__ import annotations
 
-import hashlib
 from dataclasses import asdict, dataclass, field
 
 import numpy as np
@@ -84,15 +83,7 @@ def inspect_tiles(folder, *, recursive=False):
         problems.append("every tile is blank (constant or all nodata): no seam carries information")
     elif blank:
         notes.append(f"{len(blank)} blank tile(s) will be placed with no evidence")
-    groups = {}
-    for i in range(n):
-        if ts.blank[i]:
-            continue
-        h = hashlib.sha1()
-        for s in range(4):
-            h.update(np.ascontiguousarray(ts.edges.sides[s][i]).tobytes())
-        groups.setdefault(h.hexdigest(), []).append(ts.names[i])
-    duplicates = tuple(tuple(v) for v in groups.values() if len(v) > 1)
+    duplicates = ts.duplicate_groups()
     if duplicates:
         notes.append(f"{len(duplicates)} group(s) of tiles with identical edges: they are interchangeable")
     georef = tuple(name for name, g in zip(ts.names, ts.georefs) if g is not None)

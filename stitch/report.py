@@ -82,7 +82,6 @@ def _control(fit):
 def summary_dict(result):
     """Everything a reviewer needs to know about a run, as plain data."""
     p = result.placement
-    low = np.flatnonzero(p.placed & (np.nan_to_num(p.confidence, nan=0.0) < result.options.confidence_threshold))
     g = result.georeference
     return _jsonable({
         "caution": CAUTION,
@@ -100,7 +99,7 @@ def summary_dict(result):
                    "mean_cost": list(result.search.mean_history)},
         "georeference": {"source": g.source, "crs": g.crs.to_string() if g.crs else None,
                          "transform": list(g.transform)[:6], "control": _control(result.control)},
-        "flagged_tiles": [p.names[i] for i in low],
+        "flagged_tiles": result.flagged,
         "outputs": result.outputs,
         "timings_s": {k: round(v, 4) for k, v in result.timings.items()},
         "warnings": list(result.warnings),

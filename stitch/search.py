@@ -35,7 +35,6 @@ from .errors import OptionError
 from .plugins import Registry
 
 __all__ = [
-    "SEARCHES",
     "SearchResult",
     "Pins",
     "SearchSettings",
@@ -49,8 +48,6 @@ __all__ = [
 
 log = logging.getLogger(__name__)
 
-#: Built-in search strategies.
-SEARCHES = ("evolution", "greedy")
 
 
 @dataclass(frozen=True)

@@ -198,6 +198,17 @@ class TileSet:
     def is_square(self):
         return self.width == self.height
 
+    def duplicate_groups(self):
+        """Names of non-blank tiles whose four edge strips are identical, grouped.
+
+        Such tiles are interchangeable: no seam can tell them apart.
+        """
+        groups = {}
+        for i in np.flatnonzero(~self.blank):
+            key = b"".join(np.ascontiguousarray(self.edges.sides[s][i]).tobytes() for s in range(4))
+            groups.setdefault(key, []).append(self.names[i])
+        return tuple(tuple(g) for g in groups.values() if len(g) > 1)
+
     def read(self, index):
         """Read tile ``index`` from disk as ``(bands, rows, cols)``."""
         return read_tile(self.folder / self.names[index])

@@ -18,7 +18,7 @@ from rasterio.control import GroundControlPoint
 from rasterio.transform import from_gcps
 
 from conftest import skimage_image, write_raster
-from stitch.control import fit_affine, fit_control, fit_similarity, mosaic_point, read_gcps
+from stitch.control import fit_affine, fit_similarity, mosaic_point, read_gcps
 from stitch.errors import GeoreferenceError
 from stitch.georef import GeorefSpec, read_world_file, world_file_path
 from stitch.layout import Placement

@@ -19,7 +19,7 @@ from typer.testing import CliRunner
 
 from conftest import jacksboro_dem, skimage_image, write_raster
 from stitch.cli import app
-from stitch.pipeline import SolveOptions, solve
+from stitch.pipeline import solve
 from stitch.preflight import inspect_tiles
 from stitch.review import tiles_geojson
 

@@ -7,7 +7,7 @@ from hypothesis import strategies as st
 
 from conftest import skimage_image, write_raster
 from stitch import _kernels as K
-from stitch.layout import allowed_orientations, read_placement_csv
+from stitch.layout import allowed_orientations
 from stitch.pipeline import SolveOptions, solve
 from stitch.puzzles import cut_raster, score_placement
 from stitch.search import Pins, _Problem
