@@ -122,17 +122,17 @@ def canvas_to_grid(ct, co, ext, nrows, ncols, cw, box):
 
 @njit(cache=True, nogil=True)
 def _start(ct, co, ext, cw, used, nrows, ncols, seed_tile, seed_o, pins):
-    """Place the pinned tiles (upright), or else the seed at the canvas centre.
+    """Place the pinned tiles, or else the seed at the canvas centre.
 
-    ``pins`` is ``(tiles, canvas_rows, canvas_cols, box)``. Returns the number
-    of tiles placed.
+    ``pins`` is ``(tiles, canvas_rows, canvas_cols, box, orientations)``.
+    Returns the number of tiles placed.
     """
-    pin_t, pin_r, pin_c, box = pins
+    pin_t, pin_r, pin_c, box, pin_o = pins
     if len(pin_t) == 0:
         _set(ct, co, ext, cw, nrows * cw + ncols, seed_tile, seed_o, used)
         return 1
     for q in range(len(pin_t)):
-        _set(ct, co, ext, cw, pin_r[q] * cw + pin_c[q], pin_t[q], 0, used)
+        _set(ct, co, ext, cw, pin_r[q] * cw + pin_c[q], pin_t[q], pin_o[q], used)
     return len(pin_t)
 
 

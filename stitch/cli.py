@@ -152,7 +152,9 @@ def solve(
     search: Annotated[str, typer.Option(help="Search strategy: evolution or greedy.")] = "evolution",
     population: Annotated[int, typer.Option(help="Placements per generation (0: by tile count).")] = 0,
     generations: Annotated[int, typer.Option(help="Most generations (0: by tile count).")] = 0,
-    time_limit: Annotated[Optional[float], typer.Option(help="Seconds the evolutionary search may take.")] = None,
+    time_limit: Annotated[Optional[float], typer.Option(
+        help="Seconds the whole placement search may take (grid inference included); "
+             "the best placement found by then is used.")] = None,
     bounds: Annotated[Optional[tuple[float, float, float, float]], typer.Option(
         help="Mosaic extent WEST SOUTH EAST NORTH in --crs units.")] = None,
     origin: Annotated[Optional[tuple[float, float]], typer.Option(

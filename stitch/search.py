@@ -64,7 +64,9 @@ class SearchSettings:
     patience : int
         Stop after this many generations without a better best placement.
     time_limit : float or None
-        Seconds for the evolutionary stage; None for no limit.
+        Seconds for the whole search (grid inference, first population and
+        generations); None for no limit. The best placement so far is
+        returned when it runs out.
     elite : int
         Best placements copied unchanged into the next generation.
     mutation : float
@@ -77,6 +79,10 @@ class SearchSettings:
         Children per generation polished by swap-and-turn local search.
     polish_passes : int
         Passes of that local search.
+    regrow : bool
+        Segment regrowth: keep the largest trusted segment of the best
+        placement where it is and place the other tiles around it again,
+        keeping the result when it is cheaper.
     """
 
     strategy: str = "evolution"
@@ -90,6 +96,7 @@ class SearchSettings:
     candidates_free: int = 3
     polish: int = 6
     polish_passes: int = 3
+    regrow: bool = True
 
     def __post_init__(self):
         if self.population < 0 or self.generations < 0 or self.patience < 1:
@@ -197,17 +204,21 @@ class Pins:
         return r <= shape[0] and c <= shape[1]
 
     def on_canvas(self, shape):
-        """``(tiles, canvas_rows, canvas_cols, box)`` for the kernels."""
+        """``(tiles, canvas_rows, canvas_cols, box, orientations)`` for the kernels.
+
+        Pinned tiles sit upright (their georeferencing fixes the frame).
+        """
         rows, cols = shape
         t = np.asarray(self.tiles, np.int64)
+        upright = np.zeros(len(t), np.int64)
         if not self:
-            return (t, t.copy(), t.copy(), np.array([-1, -1], np.int64))
+            return (t, t.copy(), t.copy(), np.array([-1, -1], np.int64), upright)
         if self.absolute:
             return (t, 1 + np.asarray(self.rows, np.int64), 1 + np.asarray(self.cols, np.int64),
-                    np.array([1, 1], np.int64))
+                    np.array([1, 1], np.int64), upright)
         r = np.asarray(self.rows, np.int64) - self.rows[0] + rows
         c = np.asarray(self.cols, np.int64) - self.cols[0] + cols
-        return (t, r, c, np.array([-1, -1], np.int64))
+        return (t, r, c, np.array([-1, -1], np.int64), upright)
 
 
 class _Problem:
@@ -266,6 +277,68 @@ class _Problem:
             moves += changed + K.improve(grid[0], grid[1], self.n, self.tab, self.cand, self.allowed, self.fixed,
                                          passes, 4)
         return moves
+
+    def segments(self, grid, loops=True):
+        """Cells of a grid in segments, largest first.
+
+        Two cells join when their seam is a best-buddy seam and, with
+        ``loops``, lies in a 2 x 2 square whose four seams are all best
+        buddies: a lone best-buddy seam between two wrong segments happens, a
+        closed loop of them rarely (the loop constraint of Son, Hays & Cooper,
+        ECCV 2014). Returns a list of arrays of flat cell indices (holes left
+        out).
+        """
+        from scipy.sparse import coo_matrix
+        from scipy.sparse.csgraph import connected_components
+
+        gt, go = grid
+        rows, cols = gt.shape
+        bb_seam = []
+        for d, sl_a, sl_b in ((1, np.s_[:, :-1], np.s_[:, 1:]), (2, np.s_[:-1, :], np.s_[1:, :])):
+            a_t, a_o, b_t, b_o = gt[sl_a], go[sl_a], gt[sl_b], go[sl_b]
+            ok = (a_t >= 0) & (b_t >= 0)
+            sa = np.where(ok, 4 * a_t + K.FACE[a_o, d], 0)
+            sb = 4 * b_t + K.FACE[b_o, (d + 2) % 4]
+            flip = (a_o >= 4) != (b_o >= 4)
+            bb_seam.append(ok & (self.bb[sa] == 2 * sb + flip))
+        h, v = bb_seam  # h: (rows, cols-1) seams to the right; v: (rows-1, cols) seams below
+        if loops:
+            square = h[:-1, :] & h[1:, :] & v[:, :-1] & v[:, 1:]  # (rows-1, cols-1)
+            h_ok = np.zeros_like(h)
+            v_ok = np.zeros_like(v)
+            h_ok[:-1, :] |= square
+            h_ok[1:, :] |= square
+            v_ok[:, :-1] |= square
+            v_ok[:, 1:] |= square
+        else:
+            h_ok, v_ok = h, v
+        cell = np.arange(rows * cols).reshape(rows, cols)
+        src = np.concatenate([cell[:, :-1][h_ok], cell[:-1, :][v_ok]])
+        dst = np.concatenate([cell[:, 1:][h_ok], cell[1:, :][v_ok]])
+        graph = coo_matrix((np.ones(len(src)), (src, dst)), shape=(rows * cols, rows * cols))
+        _, label = connected_components(graph, directed=False)
+        label = np.where(gt.ravel() >= 0, label, -1)
+        sizes = np.bincount(label[label >= 0])
+        order = np.argsort(-sizes, kind="stable")
+        return [np.flatnonzero(label == k) for k in order if sizes[k] > 0]
+
+    def regrow(self, grid, cells, kfree):
+        """Keep the tiles in ``cells`` (and the pins) where they are; place the rest greedily."""
+        gt, go = grid
+        rows, cols = gt.shape
+        keep = np.zeros(rows * cols, bool)
+        keep[cells] = True
+        keep |= np.isin(gt.ravel(), np.asarray(self.pins.tiles, np.int64))
+        keep &= gt.ravel() >= 0
+        r, c = np.divmod(np.flatnonzero(keep), cols)
+        t = gt.ravel()[keep]
+        o = go.ravel()[keep]
+        if self.pins.absolute:
+            pins = (t, 1 + r, 1 + c, np.array([1, 1], np.int64), o)
+        else:
+            pins = (t, r - r.min() + rows, c - c.min() + cols, np.array([-1, -1], np.int64), o)
+        return K.greedy(0, 0, rows, cols, self.n, self.tab, self.cand, self.second, self.bb, self.allowed, kfree,
+                        pins)
 
     def buddy_seams(self, grid):
         """Number of best-buddy pairs a grid realises."""
@@ -382,6 +455,7 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
         return strategy(table, shape=shape, orientations=orientations, settings=settings,
                         rng=np.random.default_rng(rng), progress=progress, pins=pins or Pins())
     rng = np.random.default_rng(rng)
+    deadline = None if settings.time_limit is None else time.perf_counter() + settings.time_limit
     problem = _Problem(table, orientations, pins or Pins())
     n = problem.n
     ranking = _seed_ranking(problem)
@@ -406,28 +480,86 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
             tiles=best_greedy[0], orientations=best_greedy[1], cost=problem.total_cost(best_greedy), strategy="greedy",
             shape_scores=shape_scores, agreement=np.ones(4 * n),
         )
-    return _evolve(problem, best_shape, best_greedy, ranking, settings, rng, progress, shape_scores)
+    return _evolve(problem, best_shape, best_greedy, ranking, settings, rng, progress, shape_scores, deadline)
 
 
-def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_scores):
+def _past(deadline, share=1.0, start=None):
+    """Has ``share`` of the time from ``start`` to ``deadline`` gone by?"""
+    if deadline is None:
+        return False
+    now = time.perf_counter()
+    if start is None:
+        return now > deadline
+    return now > start + share * (deadline - start)
+
+
+def _regrow(problem, grid, settings, deadline, rounds=20, top=3):
+    """Segment regrowth, repeated while it pays.
+
+    The best placement is cut into segments of trusted seams
+    (:meth:`_Problem.segments`, with and without the loop constraint); for
+    the largest few, that segment stays where it is and every other tile is
+    placed around it again greedily, then polished. A cheaper result is kept
+    and cut again. This moves whole misplaced segments, which swaps of single
+    tiles cannot. Returns ``(grid, fitness)``.
+    """
+    cost = problem.fitness(grid)
+    placed = int(np.sum(grid[0] >= 0))
+    for _ in range(rounds):
+        improved = False
+        tried = set()
+        for loops in (True, False):
+            for cells in problem.segments(grid, loops)[:top]:
+                key = (len(cells), int(cells[0]))
+                if len(cells) < 2 or len(cells) >= placed or key in tried or _past(deadline):
+                    continue
+                tried.add(key)
+                g = problem.regrow(grid, cells, settings.candidates_free)
+                if int(np.sum(g[0] >= 0)) < placed:  # the frame left no room for every tile
+                    continue
+                problem.polish(g, settings.polish_passes)
+                c = problem.fitness(g)
+                if c < cost - 1e-9 * max(1.0, abs(cost)):
+                    grid, cost, improved = g, c, True
+                    break
+            if improved:
+                break
+        if not improved:
+            break
+    return grid, cost
+
+
+def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_scores, deadline):
     n = problem.n
     pop_default, gen_default = _default_sizes(n)
     pop_size = settings.population or pop_default
     max_gen = settings.generations or gen_default
     elite = max(1, min(settings.elite, pop_size - 1))
-    deadline = None if settings.time_limit is None else time.perf_counter() + settings.time_limit
+    start = time.perf_counter()
 
+    # First population: the best greedy placement, more greedy runs from other
+    # seeds (polished by swaps and turns), then random placements; then the
+    # first one gets segment regrowth and window permutations. Under a time
+    # limit the extra greedy runs stop at a quarter of it, so large tile sets
+    # still get generations.
+    problem.polish(first, settings.polish_passes)
     population = [first]
     if not problem.pins:  # with pins every greedy run starts alike
         n_greedy = max(1, int(round(pop_size * settings.greedy_share)))
         seeds = list(ranking[1: min(n, 4 * n_greedy)])
         rng.shuffle(seeds)
         for seed in seeds[: n_greedy - 1]:
-            population.append(problem.greedy(int(seed), shape, settings.candidates_free))
+            if _past(deadline, 0.25, start):
+                break
+            g = problem.greedy(int(seed), shape, settings.candidates_free)
+            problem.polish(g, settings.polish_passes)
+            population.append(g)
+    if settings.regrow:
+        population[0], _ = _regrow(problem, first, settings, deadline)
+    if not _past(deadline, 0.5, start):
+        problem.polish(population[0], settings.polish_passes, windows=True)
     while len(population) < pop_size:
         population.append(problem.random(shape, rng))
-    for i, g in enumerate(population):
-        problem.polish(g, settings.polish_passes, windows=i == 0)
     costs = np.array([problem.fitness(g) for g in population])
     parts = [K.partners(g[0], g[1], n) for g in population]
 
@@ -465,13 +597,25 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         # (polishing all of them costs more than it gains).
         children = np.argsort(new_costs[elite:], kind="stable")[: settings.polish] + elite
 
-        def polish(job):
-            rank, c = job
-            problem.polish(new_pop[c], settings.polish_passes, windows=rank == 0)
+        def polish(c):
+            problem.polish(new_pop[c], settings.polish_passes)
             return c, problem.fitness(new_pop[c])
 
-        for c, cost in pool.map(polish, enumerate(children)):
+        for c, cost in pool.map(polish, children):
             new_costs[c] = cost
+        # A new best placement gets segment regrowth and window permutations
+        # (dearer than swaps, so kept for it); the result takes the place of
+        # the worst child.
+        top = int(np.argmin(new_costs))
+        if new_costs[top] < best_cost and not _past(deadline):
+            g = (new_pop[top][0].copy(), new_pop[top][1].copy())
+            if settings.regrow:
+                g, _ = _regrow(problem, g, settings, deadline, rounds=3)
+            problem.polish(g, settings.polish_passes, windows=not _past(deadline))
+            c = problem.fitness(g)
+            if c < new_costs[top]:
+                worst = elite + int(np.argmax(new_costs[elite:]))
+                new_pop[worst], new_costs[worst] = g, c
         new_parts = [parts[i] for i in order[:elite]] + [K.partners(g[0], g[1], n) for g in new_pop[elite:]]
         population, parts, costs = new_pop, new_parts, np.array(new_costs)
         generation += 1

@@ -110,3 +110,34 @@ def test_search_plugin_through_entry_points(tmp_path, monkeypatch, tiles_dir):
     opts = SolveOptions(search=__import__("stitch").SearchSettings(strategy="rowwise"))
     result = solve(tiles_dir, tmp_path / "m.tif", options=opts)
     assert result.search.strategy == "greedy"
+
+
+def test_segment_regrowth_mends_a_shifted_block():
+    """Halves of a correct placement swapped: every seam but the fault is right.
+
+    Swapping single tiles cannot mend this (each swap breaks good seams);
+    keeping one segment and placing the rest around it again does. Tiles from
+    scikit-image's bundled ``coffee`` (CC0).
+    """
+    from stitch.search import SearchSettings, _regrow
+
+    table = _table(6, (0,))
+    p = _Problem(table, (0,))
+    truth = (np.arange(36).reshape(6, 6), np.zeros((6, 6), np.int64))
+    shifted = (np.roll(truth[0], 3, axis=1), truth[1].copy())
+    largest = p.segments(shifted)[0] % 6
+    assert (largest < 3).all() or (largest >= 3).all()  # no trusted seam across the fault
+    polished = (shifted[0].copy(), shifted[1].copy())
+    p.polish(polished, 3)
+    assert p.fitness(polished) > p.fitness(truth)  # local search stays stuck
+    mended, cost = _regrow(p, shifted, SearchSettings(), deadline=None)
+    assert np.array_equal(mended[0], truth[0])
+    assert cost == pytest.approx(p.fitness(truth))
+
+
+def test_a_tiny_time_limit_still_places_every_tile_once():
+    from stitch.search import SearchSettings, search_placement
+
+    res = search_placement(TABLE, shape=(6, 6), orientations=TABLE.orientations, rng=3,
+                           settings=SearchSettings(time_limit=1e-3))
+    assert sorted(res.tiles.ravel().tolist()) == list(range(36))
