@@ -464,15 +464,29 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
 
     # A wrong shape forces seams the tiles do not want: the right one keeps
     # the most best-buddy pairs; among equals, the one with fewer cells, then
-    # the cheapest seams.
-    shape_scores = {}
-    best_shape, best_greedy, best_key = None, None, None
+    # the cheapest seams. Empty cells let a free greedy run dodge seams a full
+    # frame forces, so the close contenders are first mended by segment
+    # regrowth, and a grid with holes must then keep clearly more best-buddy
+    # seams (5 %) than a full one before it wins.
+    grids = {}
     for s in shapes:
         grid = problem.greedy(seed0, s, settings.candidates_free)
         problem.polish(grid, settings.polish_passes)
-        key = (-problem.buddy_seams(grid), s[0] * s[1], problem.normalized_cost(grid))
-        shape_scores[s] = {"buddy_pairs": -key[0], "mean_normalized_cost": key[2]}
-        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], -key[0], key[2])
+        grids[s] = grid
+    buddies = {s: problem.buddy_seams(g) for s, g in grids.items()}
+    if settings.regrow and settings.strategy != "greedy" and len(shapes) > 1:
+        top = max(buddies.values())
+        for s in shapes:
+            if buddies[s] >= 0.9 * top:
+                grids[s], _ = _regrow(problem, grids[s], settings, deadline, rounds=3)
+                buddies[s] = problem.buddy_seams(grids[s])
+    shape_scores = {}
+    best_shape, best_greedy, best_key = None, None, None
+    for s, grid in grids.items():
+        b = buddies[s]
+        key = (-(b if s[0] * s[1] == n else b / 1.05), s[0] * s[1], problem.normalized_cost(grid))
+        shape_scores[s] = {"buddy_pairs": b, "mean_normalized_cost": key[2]}
+        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], b, key[2])
         if best_key is None or key < best_key:
             best_shape, best_greedy, best_key = s, grid, key
     if settings.strategy == "greedy" or n < 3:

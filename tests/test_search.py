@@ -141,3 +141,23 @@ def test_a_tiny_time_limit_still_places_every_tile_once():
     res = search_placement(TABLE, shape=(6, 6), orientations=TABLE.orientations, rng=3,
                            settings=SearchSettings(time_limit=1e-3))
     assert sorted(res.tiles.ravel().tolist()) == list(range(36))
+
+
+def test_a_complete_set_gets_a_full_grid_not_one_with_holes():
+    """256 tiles with quarter turns: a free greedy run with empty cells keeps a
+    few more best-buddy seams than a 16 x 16 frame, yet the full grid is right.
+    Tiles from scikit-image's bundled ``astronaut`` (public domain, NASA)."""
+    from stitch.search import SearchSettings, search_placement
+
+    img = skimage_image("astronaut")[:, :448, :448].astype(np.float32)
+    rng = np.random.default_rng(1)
+    tiles = [np.rot90(img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)], int(rng.integers(4)), axes=(1, 2))
+             for r in range(16) for c in range(16)]
+    sides = [np.stack([side_strips(np.ascontiguousarray(t))[s] for t in tiles]) for s in range(4)]
+    orients = allowed_orientations(90, False)
+    table = score_seams(EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides)),
+                        orientations=orients)
+    res = search_placement(table, orientations=orients, rng=0, holes=True,
+                           settings=SearchSettings(generations=1, population=8))
+    assert res.shape == (16, 16)
+    assert (res.tiles >= 0).all()
