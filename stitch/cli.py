@@ -62,6 +62,13 @@ def _errors(verbose, quiet=False):
         except KeyboardInterrupt:
             typer.echo("interrupted: no partial output was left", err=True)
             raise typer.Exit(code=130) from None
+        except SystemError as exc:
+            # Ctrl-C while a compiled kernel runs surfaces when it returns, as
+            # a SystemError raised while the KeyboardInterrupt was pending.
+            if verbose or not isinstance(exc.__context__ or exc.__cause__, KeyboardInterrupt):
+                raise
+            typer.echo("interrupted: no partial output was left", err=True)
+            raise typer.Exit(code=130) from None
         finally:
             if not quiet:
                 for w in caught:
