@@ -9,7 +9,9 @@ from __future__ import annotations
 
 import json
 import logging
+import signal
 import sys
+import threading
 import warnings
 from contextlib import contextmanager
 from pathlib import Path
@@ -110,6 +112,41 @@ def _progress_bars(enabled):
         yield update
 
 
+@contextmanager
+def _deferred_interrupt(progress):
+    """A progress callback at which Ctrl-C takes effect.
+
+    A Ctrl-C that lands inside compiled code or a C callback can be lost or
+    turned into another error; here the first one is only recorded, and the
+    next progress report (every tile, seam chunk and generation) raises
+    KeyboardInterrupt where the library can clean up. A second Ctrl-C stops
+    at once. Outside the main thread, or when SIGINT is ignored, nothing
+    changes.
+    """
+    if threading.current_thread() is not threading.main_thread() or \
+            signal.getsignal(signal.SIGINT) is not signal.default_int_handler:
+        yield progress
+        return
+    hits = []
+
+    def on_sigint(signum, frame):
+        hits.append(signum)
+        if len(hits) > 1:
+            raise KeyboardInterrupt
+
+    def checked(stage, done, total, detail=""):
+        if hits:
+            raise KeyboardInterrupt
+        if progress is not None:
+            progress(stage, done, total, detail)
+
+    previous = signal.signal(signal.SIGINT, on_sigint)
+    try:
+        yield checked
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
 def _parse_pin(value):
     name, sep, cell = value.rpartition("=")
     try:
@@ -204,7 +241,7 @@ def solve(
             georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs,
                               gcps=None if gcps is None else str(gcps), similarity=similarity),
         )
-        with _progress_bars(not quiet and sys.stderr.isatty()) as progress:
+        with _progress_bars(not quiet and sys.stderr.isatty()) as bars, _deferred_interrupt(bars) as progress:
             result = run(tiles_dir, output, options=options, report_dir=report, overwrite=overwrite,
                          progress=progress)
     if quiet:

@@ -94,7 +94,7 @@ class SearchSettings:
     mutation: float = 0.005
     greedy_share: float = 0.5
     candidates_free: int = 3
-    polish: int = 6
+    polish: int = 3
     polish_passes: int = 3
     regrow: bool = True
 
@@ -163,6 +163,11 @@ def candidate_shapes(n_tiles, *, transposes=True):
         shapes = [s for s in shapes if s[0] <= s[1]]
     return shapes
 
+
+#: Most rounds of window permutations when polishing to the end, and for
+#: each new best placement during the generations.
+_WINDOW_ROUNDS = 50
+_NEW_BEST_WINDOW_ROUNDS = 1
 
 #: Every arrangement of six cells, for the window local search.
 _PERMS6 = np.array(list(itertools.permutations(range(6))), dtype=np.int64)
@@ -264,10 +269,11 @@ class _Problem:
         return self.crossover(self._no_parent, self._no_parent, seed, self.orientations[0], shape, 1.0,
                               int(rng.integers(2**31 - 1)))
 
-    def polish(self, grid, passes, windows=False):
-        """Local search in place: swaps and turns, then (optionally) window permutations."""
+    def polish(self, grid, passes, windows=0):
+        """Local search in place: swaps and turns, then up to ``windows`` rounds
+        of window permutations (each followed by swaps and turns again)."""
         moves = K.improve(grid[0], grid[1], self.n, self.tab, self.cand, self.allowed, self.fixed, passes, 4)
-        while windows:
+        for _ in range(int(windows)):
             changed = 0
             for h, w in ((2, 3), (3, 2)):
                 if grid[0].shape[0] >= h and grid[0].shape[1] >= w:
@@ -468,8 +474,14 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
     # frame forces, so the close contenders are first mended by segment
     # regrowth, and a grid with holes must then keep clearly more best-buddy
     # seams (5 %) than a full one before it wins.
+    def tick():
+        if progress is not None:
+            progress("search", 0, 1, "comparing grid shapes")
+
     grids = {}
     for s in shapes:
+        if progress is not None:
+            progress("search", 0, 1, f"trying a {s[0]}x{s[1]} grid")
         grid = problem.greedy(seed0, s, settings.candidates_free)
         problem.polish(grid, settings.polish_passes)
         grids[s] = grid
@@ -478,7 +490,7 @@ def search_placement(table, *, shape=None, orientations=(0,), settings=None, rng
         top = max(buddies.values())
         for s in shapes:
             if buddies[s] >= 0.9 * top:
-                grids[s], _ = _regrow(problem, grids[s], settings, deadline, rounds=3)
+                grids[s], _ = _regrow(problem, grids[s], settings, deadline, rounds=3, tick=tick)
                 buddies[s] = problem.buddy_seams(grids[s])
     shape_scores = {}
     best_shape, best_greedy, best_key = None, None, None
@@ -507,7 +519,7 @@ def _past(deadline, share=1.0, start=None):
     return now > start + share * (deadline - start)
 
 
-def _regrow(problem, grid, settings, deadline, rounds=20, top=3):
+def _regrow(problem, grid, settings, deadline, rounds=20, top=3, tick=None):
     """Segment regrowth, repeated while it pays.
 
     The best placement is cut into segments of trusted seams
@@ -515,7 +527,8 @@ def _regrow(problem, grid, settings, deadline, rounds=20, top=3):
     the largest few, that segment stays where it is and every other tile is
     placed around it again greedily, then polished. A cheaper result is kept
     and cut again. This moves whole misplaced segments, which swaps of single
-    tiles cannot. Returns ``(grid, fitness)``.
+    tiles cannot. ``tick()``, when given, is called before each attempt.
+    Returns ``(grid, fitness)``.
     """
     cost = problem.fitness(grid)
     placed = int(np.sum(grid[0] >= 0))
@@ -528,6 +541,8 @@ def _regrow(problem, grid, settings, deadline, rounds=20, top=3):
                 if len(cells) < 2 or len(cells) >= placed or key in tried or _past(deadline):
                     continue
                 tried.add(key)
+                if tick is not None:
+                    tick()
                 g = problem.regrow(grid, cells, settings.candidates_free)
                 if int(np.sum(g[0] >= 0)) < placed:  # the frame left no room for every tile
                     continue
@@ -558,33 +573,56 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     # still get generations.
     problem.polish(first, settings.polish_passes)
     population = [first]
-    if not problem.pins:  # with pins every greedy run starts alike
-        n_greedy = max(1, int(round(pop_size * settings.greedy_share)))
-        seeds = list(ranking[1: min(n, 4 * n_greedy)])
-        rng.shuffle(seeds)
-        for seed in seeds[: n_greedy - 1]:
-            if _past(deadline, 0.25, start):
-                break
-            g = problem.greedy(int(seed), shape, settings.candidates_free)
+    n_greedy = max(1, int(round(pop_size * settings.greedy_share)))
+    seeds = [int(t) for t in ranking[1:]] if not problem.pins else []  # with pins every greedy run starts alike
+    rng.shuffle(seeds)
+
+    def greedy_runs(count, share):
+        out = []
+        while seeds and len(out) < count and not _past(deadline, share, start):
+            if progress is not None:
+                progress("search", generation, max_gen, "growing placements")
+            g = problem.greedy(seeds.pop(), shape, settings.candidates_free)
             problem.polish(g, settings.polish_passes)
-            population.append(g)
+            out.append(g)
+        return out
+
+    generation = 0
+    population += greedy_runs(n_greedy - 1, 0.25)
+    def tick():
+        if progress is not None:
+            progress("search", generation, max_gen, "regrowing segments")
+
     if settings.regrow:
-        population[0], _ = _regrow(problem, first, settings, deadline)
+        population[0], _ = _regrow(problem, first, settings, deadline, tick=tick)
     if not _past(deadline, 0.5, start):
-        problem.polish(population[0], settings.polish_passes, windows=True)
+        problem.polish(population[0], settings.polish_passes, windows=_WINDOW_ROUNDS)
     while len(population) < pop_size:
         population.append(problem.random(shape, rng))
     costs = np.array([problem.fitness(g) for g in population])
     parts = [K.partners(g[0], g[1], n) for g in population]
 
     best_hist, mean_hist = [], []
-    stale, generation = 0, 0
+    stale = 0
     best_cost = costs.min()
     pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
-    while generation < max_gen and stale < settings.patience:
+    while generation < max_gen:
         if deadline is not None and time.perf_counter() > deadline:
             log.info("time limit reached after %d generations", generation)
             break
+        if stale >= settings.patience:
+            # Converged. Without a time limit that is the end; with time left,
+            # fresh greedy placements replace all but the elite and the
+            # search goes on from there.
+            fresh = greedy_runs(max(1, pop_size // 4), 1.0) if deadline is not None else []
+            if not fresh:
+                break
+            log.info("generation %d: population refreshed with %d greedy placements", generation, len(fresh))
+            keep = np.argsort(costs, kind="stable")[: pop_size - len(fresh)]
+            population = [population[i] for i in keep] + fresh
+            parts = [parts[i] for i in keep] + [K.partners(g[0], g[1], n) for g in fresh]
+            costs = np.concatenate([costs[keep], [problem.fitness(g) for g in fresh]])
+            stale = 0
         order = np.argsort(costs, kind="stable")
         new_pop = [population[i] for i in order[:elite]]
         new_costs = [costs[i] for i in order[:elite]]
@@ -624,8 +662,8 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         if new_costs[top] < best_cost and not _past(deadline):
             g = (new_pop[top][0].copy(), new_pop[top][1].copy())
             if settings.regrow:
-                g, _ = _regrow(problem, g, settings, deadline, rounds=3)
-            problem.polish(g, settings.polish_passes, windows=not _past(deadline))
+                g, _ = _regrow(problem, g, settings, deadline, rounds=3, tick=tick)
+            problem.polish(g, settings.polish_passes, windows=0 if _past(deadline) else _NEW_BEST_WINDOW_ROUNDS)
             c = problem.fitness(g)
             if c < new_costs[top]:
                 worst = elite + int(np.argmax(new_costs[elite:]))
