@@ -325,13 +325,15 @@ def partners(gt, go, n):
 
 @njit(cache=True, nogil=True)
 def fitness(gt, go, tab, bonus):
-    """What the search minimises: the sum over seams of ``cost - bonus``.
+    """What the search minimises, the sum over seams of ``cost - bonus``, and
+    the plain total seam cost, in one pass.
 
-    With every cell filled the seam count is fixed and this is the total seam
-    cost shifted by a constant. With holes, ``bonus`` (a typical cost of a
-    plausible seam) keeps the search from scattering holes to drop seams.
+    With every cell filled the seam count is fixed and the first is the total
+    seam cost shifted by a constant. With holes, ``bonus`` (a typical cost of
+    a plausible seam) keeps the search from scattering holes to drop seams.
     """
     nrows, ncols = gt.shape
+    objective = 0.0
     total = 0.0
     for i in range(nrows):
         for j in range(ncols):
@@ -339,10 +341,14 @@ def fitness(gt, go, tab, bonus):
             if x < 0:
                 continue
             if j + 1 < ncols and gt[i, j + 1] >= 0:
-                total += seam_cost(tab, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1]) - bonus
+                c = seam_cost(tab, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1])
+                objective += c - bonus
+                total += c
             if i + 1 < nrows and gt[i + 1, j] >= 0:
-                total += seam_cost(tab, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j]) - bonus
-    return total
+                c = seam_cost(tab, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j])
+                objective += c - bonus
+                total += c
+    return objective, total
 
 
 @njit(cache=True, nogil=True)

@@ -351,13 +351,18 @@ class _Problem:
         p = K.partners(grid[0], grid[1], self.n)
         return int(np.sum((p >= 0) & (p == self.bb)))
 
+    def costs(self, grid):
+        """Search objective and plain total seam cost (see :func:`stitch._kernels.fitness`)."""
+        objective, total = K.fitness(grid[0], grid[1], self.tab, self.bonus)
+        return float(objective), float(total)
+
     def fitness(self, grid):
-        """Search objective (see :func:`stitch._kernels.fitness`)."""
-        return float(K.fitness(grid[0], grid[1], self.tab, self.bonus))
+        """Search objective."""
+        return self.costs(grid)[0]
 
     def total_cost(self, grid):
         """Plain total seam cost."""
-        return float(K.fitness(grid[0], grid[1], self.tab, 0.0))
+        return self.costs(grid)[1]
 
     def normalized_cost(self, grid):
         """Mean of cost / second-best over the seams (comparable across shapes)."""
@@ -533,29 +538,35 @@ def _regrow(problem, grid, settings, deadline, rounds=20, top=3, tick=None):
     cost = problem.fitness(grid)
     placed = int(np.sum(grid[0] >= 0))
     for _ in range(rounds):
-        improved = False
-        tried = set()
-        for loops in (True, False):
-            for cells in problem.segments(grid, loops)[:top]:
-                key = (len(cells), int(cells[0]))
-                if len(cells) < 2 or len(cells) >= placed or key in tried or _past(deadline):
-                    continue
-                tried.add(key)
-                if tick is not None:
-                    tick()
-                g = problem.regrow(grid, cells, settings.candidates_free)
-                if int(np.sum(g[0] >= 0)) < placed:  # the frame left no room for every tile
-                    continue
-                problem.polish(g, settings.polish_passes)
-                c = problem.fitness(g)
-                if c < cost - 1e-9 * max(1.0, abs(cost)):
-                    grid, cost, improved = g, c, True
-                    break
-            if improved:
+        for cells in _regrow_candidates(problem, grid, top, placed):
+            if _past(deadline):
+                return grid, cost
+            if tick is not None:
+                tick()
+            g = problem.regrow(grid, cells, settings.candidates_free)
+            if int(np.sum(g[0] >= 0)) < placed:  # the frame left no room for every tile
+                continue
+            problem.polish(g, settings.polish_passes)
+            c = problem.fitness(g)
+            if c < cost - 1e-9 * max(1.0, abs(cost)):
+                grid, cost = g, c
                 break
-        if not improved:
-            break
+        else:
+            break  # no segment helped
     return grid, cost
+
+
+def _regrow_candidates(problem, grid, top, placed):
+    """The ``top`` largest segments with the loop constraint, then without it,
+    each once; single tiles and segments holding every tile are left out."""
+    out, seen = [], set()
+    for loops in (True, False):
+        for cells in problem.segments(grid, loops)[:top]:
+            key = (len(cells), int(cells[0]))
+            if 2 <= len(cells) < placed and key not in seen:
+                seen.add(key)
+                out.append(cells)
+    return out
 
 
 def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_scores, deadline):
@@ -599,13 +610,18 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         problem.polish(population[0], settings.polish_passes, windows=_WINDOW_ROUNDS)
     while len(population) < pop_size:
         population.append(problem.random(shape, rng))
-    costs = np.array([problem.fitness(g) for g in population])
+    # costs: the search objective; raws: plain total seam cost (for the history)
+    costs, raws = np.array([problem.costs(g) for g in population]).T
     parts = [K.partners(g[0], g[1], n) for g in population]
 
     best_hist, mean_hist = [], []
     stale = 0
     best_cost = costs.min()
     pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
+
+    def partners(g):
+        return K.partners(g[0], g[1], n)
+
     while generation < max_gen:
         if deadline is not None and time.perf_counter() > deadline:
             log.info("time limit reached after %d generations", generation)
@@ -620,16 +636,19 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             log.info("generation %d: population refreshed with %d greedy placements", generation, len(fresh))
             keep = np.argsort(costs, kind="stable")[: pop_size - len(fresh)]
             population = [population[i] for i in keep] + fresh
-            parts = [parts[i] for i in keep] + [K.partners(g[0], g[1], n) for g in fresh]
-            costs = np.concatenate([costs[keep], [problem.fitness(g) for g in fresh]])
+            parts = [parts[i] for i in keep] + [partners(g) for g in fresh]
+            fresh_costs, fresh_raws = np.array([problem.costs(g) for g in fresh]).reshape(-1, 2).T
+            costs = np.concatenate([costs[keep], fresh_costs])
+            raws = np.concatenate([raws[keep], fresh_raws])
             stale = 0
         order = np.argsort(costs, kind="stable")
         new_pop = [population[i] for i in order[:elite]]
         new_costs = [costs[i] for i in order[:elite]]
+        new_raws = [raws[i] for i in order[:elite]]
         # Tournament selection of size 3.
         picks = rng.integers(0, pop_size, size=(pop_size - elite, 2, 3))
         winners = np.take_along_axis(picks, np.argmin(costs[picks], axis=2)[..., None], axis=2)[..., 0]
-        seeds = rng.integers(0, n, size=pop_size - elite)
+        starts = rng.integers(0, n, size=pop_size - elite)
         rseeds = rng.integers(0, 2**31 - 1, size=pop_size - elite)
 
         def breed(job):
@@ -638,23 +657,24 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             at = np.flatnonzero(pa_t == seed)
             seed_o = int(pa_o.flat[at[0]]) if at.size else problem.orientations[0]
             child = problem.crossover(parts[ia], parts[ib], int(seed), seed_o, shape, settings.mutation, int(rs))
-            return child, problem.fitness(child)
+            return child, problem.costs(child)
 
         # Children depend only on their parents and their own seed, so running
         # them on both cores (the kernels release the GIL) changes no result.
-        for child, cost in pool.map(breed, zip(winners, seeds, rseeds)):
+        for child, (cost, raw) in pool.map(breed, zip(winners, starts, rseeds)):
             new_pop.append(child)
             new_costs.append(cost)
+            new_raws.append(raw)
         # Memetic step: polish the most promising children with local search
         # (polishing all of them costs more than it gains).
         children = np.argsort(new_costs[elite:], kind="stable")[: settings.polish] + elite
 
         def polish(c):
             problem.polish(new_pop[c], settings.polish_passes)
-            return c, problem.fitness(new_pop[c])
+            return c, problem.costs(new_pop[c])
 
-        for c, cost in pool.map(polish, children):
-            new_costs[c] = cost
+        for c, (cost, raw) in pool.map(polish, children):
+            new_costs[c], new_raws[c] = cost, raw
         # A new best placement gets segment regrowth and window permutations
         # (dearer than swaps, so kept for it); the result takes the place of
         # the worst child.
@@ -664,17 +684,16 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             if settings.regrow:
                 g, _ = _regrow(problem, g, settings, deadline, rounds=3, tick=tick)
             problem.polish(g, settings.polish_passes, windows=0 if _past(deadline) else _NEW_BEST_WINDOW_ROUNDS)
-            c = problem.fitness(g)
+            c, r = problem.costs(g)
             if c < new_costs[top]:
                 worst = elite + int(np.argmax(new_costs[elite:]))
-                new_pop[worst], new_costs[worst] = g, c
-        new_parts = [parts[i] for i in order[:elite]] + [K.partners(g[0], g[1], n) for g in new_pop[elite:]]
-        population, parts, costs = new_pop, new_parts, np.array(new_costs)
+                new_pop[worst], new_costs[worst], new_raws[worst] = g, c, r
+        new_parts = [parts[i] for i in order[:elite]] + list(pool.map(partners, new_pop[elite:]))
+        population, parts, costs, raws = new_pop, new_parts, np.array(new_costs), np.array(new_raws)
         generation += 1
         gen_best = float(costs.min())
-        raw = [problem.total_cost(g) for g in population]
-        best_hist.append(raw[int(np.argmin(costs))])
-        mean_hist.append(float(np.mean(raw)))
+        best_hist.append(float(raws[int(np.argmin(costs))]))
+        mean_hist.append(float(np.mean(raws)))
         if gen_best < best_cost - 1e-9 * max(1.0, abs(best_cost)):
             best_cost = gen_best
             stale = 0
@@ -693,7 +712,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     agreement = np.mean([p == best_parts for p in top], axis=0)
     log.info("evolution: %d generations, best cost %.1f", generation, costs[order[0]])
     return SearchResult(
-        tiles=best[0], orientations=best[1], cost=problem.total_cost(best),
+        tiles=best[0], orientations=best[1], cost=float(raws[order[0]]),
         best_history=tuple(best_hist), mean_history=tuple(mean_hist), generations=generation,
         strategy="evolution", shape_scores=shape_scores, agreement=agreement,
     )

@@ -66,6 +66,13 @@ def case(name):
     return deco
 
 
+def _with_gcps(tmp, text):
+    """A tile folder and the options that bring in a control file holding ``text``."""
+    f = tmp / "gcp.csv"
+    f.write_text(text)
+    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"]
+
+
 @case("empty folder")
 def _(tmp):
     (tmp / "in").mkdir()
@@ -152,30 +159,23 @@ def _(tmp):
 
 @case("control file with a missing column")
 def _(tmp):
-    f = tmp / "gcp.csv"
-    f.write_text("tile,col,row,x\nt0.tif,1,1,3\n")
-    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "gcp.csv' lacks column(s) y"
+    return (*_with_gcps(tmp, "tile,col,row,x\nt0.tif,1,1,3\n"), 1, "gcp.csv' lacks column(s) y")
 
 
 @case("control file with non-numeric values")
 def _(tmp):
-    f = tmp / "gcp.csv"
-    f.write_text("tile,col,row,x,y\nt0.tif,1,one,3,4\n")
-    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "gcp.csv line 2"
+    return (*_with_gcps(tmp, "tile,col,row,x,y\nt0.tif,1,one,3,4\n"), 1, "gcp.csv line 2")
 
 
 @case("control point on an unknown tile")
 def _(tmp):
-    f = tmp / "gcp.csv"
-    f.write_text("tile,col,row,x,y\nnope.tif,1,1,3,4\nt0.tif,5,5,9,9\n")
-    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "'nope.tif', which is not placed"
+    text = "tile,col,row,x,y\nnope.tif,1,1,3,4\nt0.tif,5,5,9,9\n"
+    return (*_with_gcps(tmp, text), 1, "'nope.tif', which is not placed")
 
 
 @case("collinear control points")
 def _(tmp):
-    f = tmp / "gcp.csv"
-    f.write_text("tile,col,row,x,y\nt0.tif,1,1,1,1\nt0.tif,2,2,2,2\nt0.tif,3,3,3,3\n")
-    return _tiles(tmp / "in"), ["--gcps", f, "--crs", "EPSG:32630"], 1, "one line"
+    return (*_with_gcps(tmp, "tile,col,row,x,y\nt0.tif,1,1,1,1\nt0.tif,2,2,2,2\nt0.tif,3,3,3,3\n"), 1, "one line")
 
 
 @case("output folder does not exist")

@@ -161,3 +161,14 @@ def test_a_complete_set_gets_a_full_grid_not_one_with_holes():
                            settings=SearchSettings(generations=1, population=8))
     assert res.shape == (16, 16)
     assert (res.tiles >= 0).all()
+
+
+def test_a_converged_search_with_time_left_refreshes_and_goes_on():
+    """Patience 1 under a time limit: the population is refreshed with greedy
+    placements (a crossover seed array once shadowed their list and crashed this)."""
+    from stitch.search import SearchSettings, search_placement
+
+    res = search_placement(TABLE, shape=(6, 6), orientations=TABLE.orientations, rng=3,
+                           settings=SearchSettings(time_limit=3, patience=1, population=12))
+    assert res.generations >= 2
+    assert sorted(res.tiles.ravel().tolist()) == list(range(36))
