@@ -401,6 +401,11 @@ def _default_sizes(n):
     return population, generations
 
 
+#: Smallest share of a hole-y grid's cells that tiles must fill for the grid
+#: to be inferred (a few tiles missing, not a scatter).
+_MIN_FILL = 0.8
+
+
 def _free_shape(problem, seed, kfree):
     """Grid read off a greedy placement with room to grow any way (holes allowed)."""
     side = 2 * math.ceil(math.sqrt(problem.n)) + 2
@@ -423,8 +428,11 @@ def _shapes_to_try(problem, shape, orientations, seed, kfree, holes):
     else:
         shapes = candidate_shapes(n, transposes=True)
         if holes:
+            # A free run can wander off and leave a box far larger than the
+            # set: a grid with holes is only a candidate while at least
+            # _MIN_FILL of its cells hold a tile (sparser sets need --grid).
             free = _free_shape(problem, seed, kfree)
-            if free[0] * free[1] >= n and free not in shapes:
+            if n <= free[0] * free[1] <= n / _MIN_FILL and free not in shapes:
                 shapes.append(free)
     fitting = [s for s in shapes if problem.pins.fits(s)]
     if not fitting:

@@ -143,23 +143,47 @@ def test_a_tiny_time_limit_still_places_every_tile_once():
     assert sorted(res.tiles.ravel().tolist()) == list(range(36))
 
 
+def _turned_astronaut(px, shuffle=False):
+    """Seam table of the top-left 448 x 448 px of scikit-image's ``astronaut``
+    (public domain, NASA) cut into ``px`` tiles, each given a random quarter turn."""
+    img = skimage_image("astronaut")[:, :448, :448].astype(np.float32)
+    rng = np.random.default_rng(1)
+    side = 448 // px
+    tiles = [np.rot90(img[:, px * r:px * (r + 1), px * c:px * (c + 1)], int(rng.integers(4)), axes=(1, 2))
+             for r in range(side) for c in range(side)]
+    if shuffle:
+        tiles = [tiles[i] for i in rng.permutation(len(tiles))]
+    sides = [np.stack([side_strips(np.ascontiguousarray(t))[s] for t in tiles]) for s in range(4)]
+    orients = allowed_orientations(90, False)
+    table = score_seams(EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides)),
+                        orientations=orients)
+    return table, orients
+
+
 def test_a_complete_set_gets_a_full_grid_not_one_with_holes():
     """256 tiles with quarter turns: a free greedy run with empty cells keeps a
     few more best-buddy seams than a 16 x 16 frame, yet the full grid is right.
     Tiles from scikit-image's bundled ``astronaut`` (public domain, NASA)."""
     from stitch.search import SearchSettings, search_placement
 
-    img = skimage_image("astronaut")[:, :448, :448].astype(np.float32)
-    rng = np.random.default_rng(1)
-    tiles = [np.rot90(img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)], int(rng.integers(4)), axes=(1, 2))
-             for r in range(16) for c in range(16)]
-    sides = [np.stack([side_strips(np.ascontiguousarray(t))[s] for t in tiles]) for s in range(4)]
-    orients = allowed_orientations(90, False)
-    table = score_seams(EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides)),
-                        orientations=orients)
+    table, orients = _turned_astronaut(28)
     res = search_placement(table, orientations=orients, rng=0, holes=True,
                            settings=SearchSettings(generations=1, population=8))
     assert res.shape == (16, 16)
+    assert (res.tiles >= 0).all()
+
+
+def test_a_free_run_that_wanders_off_does_not_set_the_grid():
+    """784 small tiles (16 px) with quarter turns: a free greedy run sprawls
+    over a 35 x 37 box (40 % empty) and keeps more best-buddy seams than the
+    28 x 28 frame, but a grid that sparse is no candidate. Tiles from
+    scikit-image's bundled ``astronaut`` (public domain, NASA)."""
+    from stitch.search import SearchSettings, search_placement
+
+    table, orients = _turned_astronaut(16, shuffle=True)
+    res = search_placement(table, orientations=orients, rng=0, holes=True,
+                           settings=SearchSettings(strategy="greedy"))
+    assert res.shape == (28, 28)
     assert (res.tiles >= 0).all()
 
 
