@@ -7,6 +7,7 @@ and prints the seconds of each and their ratio.
 
     python bench/search_jit.py            # 18 x 18 tiles of 28 px from skimage's astronaut
     python bench/search_jit.py --tiles 10
+    python bench/search_jit.py --quarter  # tiles turned at random, quarter turns allowed
 """
 
 import argparse
@@ -19,7 +20,10 @@ import time
 import numpy as np
 
 
-def _puzzle(side):
+QUARTER = (0, 1, 2, 3)
+
+
+def _puzzle(side, quarter=False):
     from skimage import data
 
     from stitch.seams import score_seams
@@ -29,16 +33,19 @@ def _puzzle(side):
     tiles = [img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)] for r in range(side) for c in range(side)]
     order = np.random.default_rng(0).permutation(len(tiles))
     tiles = [tiles[i] for i in order]
+    if quarter:
+        turns = np.random.default_rng(1).integers(4, size=len(tiles))
+        tiles = [np.ascontiguousarray(np.rot90(t, k, axes=(1, 2))) for t, k in zip(tiles, turns)]
     sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
     edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
-    return score_seams(edges, orientations=(0,))
+    return score_seams(edges, orientations=QUARTER if quarter else (0,))
 
 
-def _time_kernels(side, repeats):
+def _time_kernels(side, repeats, quarter=False):
     from stitch import _kernels as K
     from stitch.search import _PERMS6, _Problem
 
-    p = _Problem(_puzzle(side), (0,))
+    p = _Problem(_puzzle(side, quarter), QUARTER if quarter else (0,))
     shape = (side, side)
     timings = {}
 
@@ -52,8 +59,7 @@ def _time_kernels(side, repeats):
     grid = p.greedy(0, shape, 3)
     parts = K.partners(grid[0], grid[1], p.n)
     timed("greedy", lambda: p.greedy(0, shape, 3))
-    timed("crossover", lambda: K.crossover(parts, parts, 1, 0, side, side, p.n, p.tab,
-                                           p.cand, p.bb, p.allowed, 0.005, 1))
+    timed("crossover", lambda: p.crossover(parts, parts, 1, 0, shape, 0.005, 1))
     timed("swap pass", lambda: K.improve(grid[0].copy(), grid[1].copy(), p.n, p.tab, p.cand,
                                          p.allowed, p.fixed, 1, 4))
     timed("window pass", lambda: K.permute_windows(grid[0].copy(), grid[1].copy(), 2, 3, _PERMS6, p.tab,
@@ -64,17 +70,19 @@ def _time_kernels(side, repeats):
 def main():
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--tiles", type=int, default=18, help="puzzle side in tiles (default 18)")
+    ap.add_argument("--quarter", action="store_true", help="tiles turned at random, quarter turns allowed")
     ap.add_argument("--child", action="store_true", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:
-        print(json.dumps(_time_kernels(args.tiles, 1)))
+        print(json.dumps(_time_kernels(args.tiles, 1, args.quarter)))
         return
-    compiled = _time_kernels(args.tiles, 5)
+    compiled = _time_kernels(args.tiles, 5, args.quarter)
     env = dict(os.environ, NUMBA_DISABLE_JIT="1")
-    out = subprocess.run([sys.executable, __file__, "--child", "--tiles", str(args.tiles)], env=env,
+    child = [sys.executable, __file__, "--child", "--tiles", str(args.tiles)] + (["--quarter"] if args.quarter else [])
+    out = subprocess.run(child, env=env,
                          capture_output=True, text=True, check=True)
     python = json.loads(out.stdout.strip().splitlines()[-1])
-    print(f"{args.tiles * args.tiles} tiles, upright; seconds per call")
+    print(f"{args.tiles * args.tiles} tiles, {'quarter turns' if args.quarter else 'upright'}; seconds per call")
     print(f"{'kernel':<12} {'numba':>10} {'python':>10} {'ratio':>8}")
     for k in compiled:
         print(f"{k:<12} {compiled[k]:>10.5f} {python[k]:>10.4f} {python[k] / compiled[k]:>7.0f}x")

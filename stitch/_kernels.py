@@ -605,20 +605,36 @@ def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
                         ox = go[i, j]
                         oy_old = go[i2, j2]
                         before = _pair_cost(gt, go, i, j, i2, j2, tab)
+                        bar = before - 1e-6 * (1.0 + before)
                         gt[i, j] = y
                         go[i, j] = oy
                         gt[i2, j2] = x
                         best = np.inf
                         best_ox = ox
-                        for o in range(8):
-                            if not allowed[o]:
-                                continue
-                            go[i2, j2] = o
-                            c = _pair_cost(gt, go, i, j, i2, j2, tab)
-                            if c < best:
-                                best = c
-                                best_ox = o
-                        if best < before - 1e-6 * (1.0 + before):
+                        if abs(i - i2) + abs(j - j2) == 1:
+                            for o in range(8):
+                                if not allowed[o]:
+                                    continue
+                                go[i2, j2] = o
+                                c = _pair_cost(gt, go, i, j, i2, j2, tab)
+                                if c < best:
+                                    best = c
+                                    best_ox = o
+                        else:
+                            # Apart, the two cells' seams are independent: y's
+                            # side alone can rule the swap out (seam costs are
+                            # >= 0), and x's turns only change x's side.
+                            cy = _cell_cost(gt, go, i, j, tab)
+                            if cy < bar:
+                                for o in range(8):
+                                    if not allowed[o]:
+                                        continue
+                                    go[i2, j2] = o
+                                    c = cy + _cell_cost(gt, go, i2, j2, tab)
+                                    if c < best:
+                                        best = c
+                                        best_ox = o
+                        if best < bar:
                             go[i2, j2] = best_ox
                             pos[y] = i * ncols + j
                             pos[x] = i2 * ncols + j2
