@@ -29,6 +29,7 @@ from numba import njit, prange
 from .plugins import Registry
 
 __all__ = [
+    "AUTO",
     "DEFAULT_MEASURE",
     "ENTRY_POINT_GROUP",
     "available_measures",
@@ -245,8 +246,13 @@ def _robust_scale(block):
 
 _BUILTIN = {"mgc": mgc, "ssd": ssd, "prediction": prediction, "mgc+prediction": mgc_prediction}
 
-#: Measure used when none is named (chosen by bench/seams.py; see DEVELOPERS.md).
-DEFAULT_MEASURE = "mgc"
+#: Not a measure: asks :func:`stitch.seams.score_seams` to score with MGC and
+#: with prediction and keep the one whose best buddies are more numerous.
+AUTO = "auto"
+
+#: Measure used when none is named (see :func:`stitch.seams.score_seams` and
+#: DEVELOPERS.md for how it was chosen).
+DEFAULT_MEASURE = AUTO
 
 
 _REGISTRY = Registry(ENTRY_POINT_GROUP, _BUILTIN, "--seam")

@@ -54,7 +54,8 @@ class SolveOptions:
     mirrored : bool
         Tiles may also be mirrored left-right.
     measure : str
-        Seam measure name (see :func:`stitch.seams.available_measures`).
+        Seam measure name (see :func:`stitch.seams.available_measures`), or
+        ``"auto"``: MGC or prediction, whichever gives more best buddies.
     candidates : int
         Candidates kept per tile side.
     search : SearchSettings
@@ -133,6 +134,8 @@ class SolveResult:
         Seam confidence on the top, right, bottom and left of each tile.
     pinned : frozenset of int
         Indices of tiles that were pinned.
+    measure : str
+        Seam measure that scored the seams (the one ``"auto"`` chose).
     """
 
     placement: Placement
@@ -146,6 +149,7 @@ class SolveResult:
     control: object = None
     side_scores: np.ndarray | None = None
     pinned: frozenset = frozenset()
+    measure: str = ""
 
     @property
     def flagged(self):
@@ -344,7 +348,7 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         timings["write"] = time.perf_counter() - t0
         outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
         result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit,
-                             sides, frozenset(pins.tiles))
+                             sides, frozenset(pins.tiles), table.measure)
         write_report(result, report_dir, overwrite=overwrite)
     except BaseException:
         for p in planned:

@@ -25,12 +25,14 @@ from threadpoolctl import threadpool_limits
 
 from .errors import OptionError
 from .layout import facing_side
-from .measures import DEFAULT_MEASURE, available_measures, call_measure, get_measure
+from .measures import AUTO, DEFAULT_MEASURE, available_measures, call_measure, get_measure
 
 __all__ = [
+    "AUTO_LIMIT",
     "DEFAULT_MEASURE",
     "SeamTable",
     "available_measures",
+    "best_buddy_share",
     "band_scaling",
     "normalize_strips",
     "score_seams",
@@ -364,6 +366,45 @@ class SeamTable:
         return np.clip(np.nan_to_num(r, nan=0.0), 0.0, 1.0)
 
 
+#: ``measure="auto"`` also tries ``prediction`` (about ten times dearer than
+#: MGC) while ``n_tiles ** 2`` times the number of cost blocks (2 upright, 10
+#: with quarter turns) stays within this: 1,000 upright tiles or about 450
+#: with quarter turns, a few seconds on two cores. Larger sets get MGC.
+AUTO_LIMIT = 2_000_000
+
+#: The two measures ``auto`` chooses between, the cheaper first (it wins ties).
+AUTO_CHOICES = ("mgc", "prediction")
+
+
+def best_buddy_share(table):
+    """Share of live side slots whose best match is mutual (a best buddy).
+
+    Measures that rank true neighbours first more often also produce more
+    best buddies (Pomeranz, Shemesh & Ben-Shahar, CVPR 2011, use them as an
+    estimate of correctness), so this compares measures without knowing the
+    answer.
+    """
+    live = ~table.dead
+    return float(np.mean(table.best_buddies[live] >= 0)) if live.any() else 0.0
+
+
+def _score_auto(edges, orientations, progress, **kw):
+    n = edges.sides[0].shape[0]
+    blocks = len({(min(a, b), max(a, b), f) for a, b, f in _side_pairs(orientations)})
+    if n * n * blocks > AUTO_LIMIT:
+        log.info("seam measure: %s (%d tiles: too many to also try %s)", AUTO_CHOICES[0], n, AUTO_CHOICES[1])
+        return score_seams(edges, orientations=orientations, measure=AUTO_CHOICES[0], progress=progress, **kw)
+    tables = []
+    for i, name in enumerate(AUTO_CHOICES):
+        step = None if progress is None else (lambda stage, done, total, i=i: progress(stage, i * total + done, 2 * total))
+        tables.append(score_seams(edges, orientations=orientations, measure=name, progress=step, **kw))
+    shares = [best_buddy_share(t) for t in tables]
+    best = int(np.argmax(shares))  # first of equals: the cheaper measure
+    log.info("seam measure: %s (best-buddy share %s)", AUTO_CHOICES[best],
+             ", ".join(f"{m} {s:.3f}" for m, s in zip(AUTO_CHOICES, shares)))
+    return tables[best]
+
+
 def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blank=None, dense=None, progress=None):
     """Score every seam the allowed orientations can form.
 
@@ -373,7 +414,10 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     orientations : tuple of int, optional
         Allowed orientation codes, from :func:`stitch.layout.allowed_orientations`.
     measure : str or callable, optional
-        A registered measure name or a measure function.
+        A registered measure name or a measure function. ``"auto"`` (the
+        default) scores with MGC and with prediction and keeps the table with
+        the larger :func:`best_buddy_share`; sets above :data:`AUTO_LIMIT`
+        get MGC. The table's ``measure`` names the one used.
     k : int, optional
         Candidates kept per side slot.
     blank : ndarray of bool, optional
@@ -388,6 +432,8 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     -------
     SeamTable
     """
+    if measure == AUTO:
+        return _score_auto(edges, orientations, progress, k=k, blank=blank, dense=dense)
     fn = get_measure(measure) if isinstance(measure, str) else measure
     name = measure if isinstance(measure, str) else getattr(measure, "__name__", "custom")
     sides = normalize_strips(edges.sides, edges.valid)

@@ -27,6 +27,7 @@ def test_solve_writes_everything_and_says_where(tmp_path, tiles_dir):
         assert path.is_file()
         assert f"wrote {path}" in r.output
     assert "not survey-grade" in r.output
+    assert "seams by mgc" in r.output or "seams by prediction" in r.output
     assert checksums(tiles_dir) == before  # inputs untouched
 
 

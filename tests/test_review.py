@@ -72,6 +72,8 @@ def test_summary_best_cost_never_rises(solved):
     assert all(b2 <= b1 + 1e-6 * abs(b1) for b1, b2 in zip(best, best[1:]))
     assert summary["caution"].startswith("A reconstructed mosaic is not survey-grade")
     assert summary["options"]["seed"] == 0 and summary["versions"]["gdal"]
+    assert summary["options"]["measure"] == "auto" and summary["seam_measure"] in ("mgc", "prediction")
+    assert summary["seam_measure"] == solved.measure
 
 
 def _chromium():

@@ -226,3 +226,56 @@ def test_blocked_topk_equals_dense(monkeypatch, measure):
     ok = b >= 0
     np.testing.assert_allclose(sparse.cost(a[ok], b[ok] // 2, b[ok] % 2), dense.cost(a[ok], b[ok] // 2, b[ok] % 2),
                                rtol=1e-5)
+
+
+
+def _edges_of(img, px, side):
+    """Edge strips of ``side x side`` tiles of ``px`` in reading order."""
+    tiles = [img[:, px * r:px * (r + 1), px * c:px * (c + 1)].astype(np.float32)
+             for r in range(side) for c in range(side)]
+    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
+    return EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+
+
+def _ranked_first(table, side):
+    """Share of true seams (both directions) whose true partner a side ranks first."""
+    i = np.arange(side * side).reshape(side, side)
+    a = np.concatenate([4 * i[:, :-1].ravel() + 1, 4 * i[:-1, :].ravel() + 2])  # right, bottom sides
+    b = np.concatenate([4 * i[:, 1:].ravel() + 3, 4 * i[1:, :].ravel() + 0])  # their true partners
+    first = table.candidates[:, 0]
+    return np.mean(np.concatenate([first[a] == 2 * b, first[b] == 2 * a]))
+
+
+@pytest.mark.parametrize("image, expected", [("gravel", "prediction"), ("astronaut", "mgc")])
+def test_auto_keeps_the_measure_with_more_best_buddies(image, expected):
+    """12 x 12 tiles of 28 px from scikit-image's bundled ``gravel`` (CC0) and
+    ``astronaut`` (public domain, NASA): the measure with more best buddies
+    is the one that ranks true neighbours first more often, found without
+    the answer."""
+    from stitch.seams import best_buddy_share
+
+    edges = _edges_of(skimage_image(image), 28, 12)
+    auto = score_seams(edges, measure="auto")
+    each = {m: score_seams(edges, measure=m) for m in ("mgc", "prediction")}
+    assert auto.measure == expected
+    assert best_buddy_share(each[expected]) == max(best_buddy_share(t) for t in each.values())
+    assert _ranked_first(each[expected], 12) == max(_ranked_first(t, 12) for t in each.values())
+    np.testing.assert_array_equal(auto.candidates, each[expected].candidates)
+    np.testing.assert_array_equal(auto.blocks, each[expected].blocks)
+
+
+def test_auto_scores_large_sets_with_mgc_alone(monkeypatch):
+    import stitch.seams
+
+    edges = _edges_of(skimage_image("gravel"), 28, 6)  # prediction's set when both are tried
+    monkeypatch.setattr(stitch.seams, "AUTO_LIMIT", 36 * 36 * 2 - 1)  # one tile pair too many
+    calls = []
+    progress = lambda stage, done, total: calls.append((done, total))  # noqa: E731
+    assert score_seams(edges, measure="auto", progress=progress).measure == "mgc"
+    one_pass = calls[-1][1]
+    assert calls[-1][0] == one_pass  # reported to its end
+    monkeypatch.setattr(stitch.seams, "AUTO_LIMIT", 36 * 36 * 2)
+    calls.clear()
+    assert score_seams(edges, measure="auto", progress=progress).measure == "prediction"
+    assert calls[-1] == (2 * one_pass, 2 * one_pass)  # two passes on one bar, to its end
+    assert [d for d, _ in calls] == sorted(d for d, _ in calls)
