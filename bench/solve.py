@@ -145,7 +145,7 @@ def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None, tile=T
         dt = time.perf_counter() - t0 + t_seams
         s = score_placement(_placement(grid, key.names, turns), key)
         out[method] = (s.direct, s.neighbor, s.perfect, dt)
-        print(f"| {name} | {rows}x{cols} | {'quarter' if turns else 'upright'} | {method} | {s.direct:.3f} | "
+        print(f"| {name} | {rows}x{cols} | {'quarter' if turns else 'upright'} | {table.measure} | {method} | {s.direct:.3f} | "
               f"{s.neighbor:.3f} | {'yes' if s.perfect else 'no'} | {dt:.1f} |", flush=True)
     return out
 
@@ -183,8 +183,8 @@ def main():
         return
     rng = np.random.default_rng(2026)
     methods = ("greedy", "greedy + evolution", "plain GA")
-    print("| puzzle | grid | turns | method | direct | neighbour | perfect | seconds |")
-    print("|---|---|---|---|---:|---:|---:|---:|")
+    print("| puzzle | grid | turns | seams | method | direct | neighbour | perfect | seconds |")
+    print("|---|---|---|---|---|---:|---:|---:|---:|")
     # warm up the compiled kernels so their one-off compilation is not timed
     img0 = _open_images()["astronaut"][:, :112, :112]
     run_case("warm-up", img0, 4, 4, True, rng, ("greedy", "greedy + evolution"))
@@ -199,7 +199,7 @@ def main():
                     summary.setdefault((turns, m), []).append(v)
         for (turns, m), vals in summary.items():
             v = np.array([[d, nb, p, t] for d, nb, p, t in vals], float)
-            print(f"| **mean** | | {'quarter' if turns else 'upright'} | {m} | {v[:, 0].mean():.3f} | "
+            print(f"| **mean** | | {'quarter' if turns else 'upright'} | | {m} | {v[:, 0].mean():.3f} | "
                   f"{v[:, 1].mean():.3f} | {int(v[:, 2].sum())}/{len(v)} | {v[:, 3].mean():.1f} |")
     if not (args.quick or args.skip_large):
         run_case("landscape 64 px", _landscape(32, 32, 64, 1), 32, 32, False, rng, methods[:2], tile=64)
