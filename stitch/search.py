@@ -532,32 +532,42 @@ def _past(deadline, share=1.0, start=None):
     return now > start + share * (deadline - start)
 
 
-def _regrow(problem, grid, settings, deadline, rounds=20, top=3, tick=None):
+def _regrow(problem, grid, settings, deadline, rounds=20, top=3, tick=None, pool=None):
     """Segment regrowth, repeated while it pays.
 
     The best placement is cut into segments of trusted seams
     (:meth:`_Problem.segments`, with and without the loop constraint); for
     the largest few, that segment stays where it is and every other tile is
-    placed around it again greedily, then polished. A cheaper result is kept
-    and cut again. This moves whole misplaced segments, which swaps of single
-    tiles cannot. ``tick()``, when given, is called before each attempt.
+    placed around it again greedily, then polished. The first cheaper result,
+    in candidate order, is kept and cut again. This moves whole misplaced
+    segments, which swaps of single tiles cannot. With a thread ``pool`` the
+    attempts of a round run side by side (same result, as the first cheaper
+    one still wins). ``tick()``, when given, is called once per attempt.
     Returns ``(grid, fitness)``.
     """
     cost = problem.fitness(grid)
     placed = int(np.sum(grid[0] >= 0))
+
+    def attempt(job):
+        base, cells = job
+        if _past(deadline):
+            return None
+        g = problem.regrow(base, cells, settings.candidates_free)
+        if int(np.sum(g[0] >= 0)) < placed:  # the frame left no room for every tile
+            return g, np.inf
+        problem.polish(g, settings.polish_passes)
+        return g, problem.fitness(g)
+
     for _ in range(rounds):
-        for cells in _regrow_candidates(problem, grid, top, placed):
-            if _past(deadline):
-                return grid, cost
+        jobs = [(grid, cells) for cells in _regrow_candidates(problem, grid, top, placed)]
+        # Executor.map cancels the attempts not yet started when the loop breaks.
+        for out in (pool.map if pool is not None else map)(attempt, jobs):
             if tick is not None:
                 tick()
-            g = problem.regrow(grid, cells, settings.candidates_free)
-            if int(np.sum(g[0] >= 0)) < placed:  # the frame left no room for every tile
-                continue
-            problem.polish(g, settings.polish_passes)
-            c = problem.fitness(g)
-            if c < cost - 1e-9 * max(1.0, abs(cost)):
-                grid, cost = g, c
+            if out is None:  # time is up
+                return grid, cost
+            if out[1] < cost - 1e-9 * max(1.0, abs(cost)):
+                grid, cost = out
                 break
         else:
             break  # no segment helped
@@ -592,6 +602,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     # still get generations.
     problem.polish(first, settings.polish_passes)
     population = [first]
+    pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
     n_greedy = max(1, int(round(pop_size * settings.greedy_share)))
     seeds = [int(t) for t in ranking[1:]] if not problem.pins else []  # with pins every greedy run starts alike
     rng.shuffle(seeds)
@@ -613,7 +624,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             progress("search", generation, max_gen, "regrowing segments")
 
     if settings.regrow:
-        population[0], _ = _regrow(problem, first, settings, deadline, tick=tick)
+        population[0], _ = _regrow(problem, first, settings, deadline, tick=tick, pool=pool)
     if not _past(deadline, 0.5, start):
         problem.polish(population[0], settings.polish_passes, windows=_WINDOW_ROUNDS)
     while len(population) < pop_size:
@@ -625,7 +636,6 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     best_hist, mean_hist = [], []
     stale = 0
     best_cost = costs.min()
-    pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
 
     def partners(g):
         return K.partners(g[0], g[1], n)
@@ -690,7 +700,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
         if new_costs[top] < best_cost and not _past(deadline):
             g = (new_pop[top][0].copy(), new_pop[top][1].copy())
             if settings.regrow:
-                g, _ = _regrow(problem, g, settings, deadline, rounds=3, tick=tick)
+                g, _ = _regrow(problem, g, settings, deadline, rounds=3, tick=tick, pool=pool)
             problem.polish(g, settings.polish_passes, windows=0 if _past(deadline) else _NEW_BEST_WINDOW_ROUNDS)
             c, r = problem.costs(g)
             if c < new_costs[top]:
