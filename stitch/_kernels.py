@@ -700,19 +700,77 @@ def _window_settled(gt, go, r0, c0, h, w, bb):
 
 
 @njit(cache=True, nogil=True)
+def _window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, tab, edge, right, below):
+    """Seam costs a window's tiles can make, for trying its arrangements.
+
+    ``edge[t, q]``: tile ``t`` of the window (``cells_t[t]`` turned
+    ``cells_o[t]``) at window cell ``q`` against the tiles around the window;
+    ``right[t, u]`` / ``below[t, u]``: tile ``u`` right of / below tile ``t``.
+    Holes cost nothing.
+    """
+    nrows, ncols = gt.shape
+    k = h * w
+    for t in range(k):
+        x = cells_t[t]
+        for q in range(k):
+            total = 0.0
+            if x >= 0:
+                i = r0 + q // w
+                j = c0 + q % w
+                for d in range(4):
+                    ni = i + DROW[d]
+                    nj = j + DCOL[d]
+                    if ni < 0 or nj < 0 or ni >= nrows or nj >= ncols:
+                        continue
+                    if r0 <= ni < r0 + h and c0 <= nj < c0 + w:
+                        continue
+                    y = gt[ni, nj]
+                    if y >= 0:
+                        total += seam_cost(tab, x, cells_o[t], d, y, go[ni, nj])
+            edge[t, q] = total
+        for u in range(k):
+            y = cells_t[u]
+            if x < 0 or y < 0 or u == t:
+                right[t, u] = 0.0
+                below[t, u] = 0.0
+            else:
+                right[t, u] = seam_cost(tab, x, cells_o[t], 1, y, cells_o[u])
+                below[t, u] = seam_cost(tab, x, cells_o[t], 2, y, cells_o[u])
+
+
+@njit(cache=True, nogil=True)
+def _arrangement_cost(p, perms, h, w, edge, right, below):
+    k = h * w
+    total = 0.0
+    for q in range(k):
+        t = perms[p, q]
+        total += edge[t, q]
+        if q % w + 1 < w:
+            total += right[t, perms[p, q + 1]]
+        if q + w < k:
+            total += below[t, perms[p, q + w]]
+    return total
+
+
+@njit(cache=True, nogil=True)
 def permute_windows(gt, go, h, w, perms, tab, fixed, bb):
     """Try every arrangement of the tiles inside each ``h x w`` window.
 
     Fixes small scrambled blocks that no single swap improves (each swap on
-    the way costs more). ``perms`` lists the permutations of ``h * w`` cells.
-    Tiles keep their orientation; windows holding fixed tiles, and windows
-    whose inner seams all join best buddies, are skipped. Works in place;
-    returns the number of windows rearranged.
+    the way costs more). ``perms`` lists the permutations of ``h * w`` cells
+    (the first is the identity). Tiles keep their orientation; windows
+    holding fixed tiles, and windows whose inner seams all join best buddies,
+    are skipped. Each window's possible seams are looked up once
+    (:func:`_window_tables`), so an arrangement costs a few additions. Works
+    in place; returns the number of windows rearranged.
     """
     nrows, ncols = gt.shape
     k = h * w
     cells_t = np.empty(k, np.int64)
     cells_o = np.empty(k, np.int64)
+    edge = np.empty((k, k))
+    right = np.empty((k, k))
+    below = np.empty((k, k))
     changed = 0
     for r0 in range(0, nrows - h + 1):
         for c0 in range(0, ncols - w + 1):
@@ -725,21 +783,17 @@ def permute_windows(gt, go, h, w, perms, tab, fixed, bb):
                     skip = True
             if skip or _window_settled(gt, go, r0, c0, h, w, bb):
                 continue
-            base = _window_cost(gt, go, r0, c0, h, w, tab)
-            best = base
+            _window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, tab, edge, right, below)
+            best = _arrangement_cost(0, perms, h, w, edge, right, below)
             best_p = -1
             for p in range(1, perms.shape[0]):
-                for q in range(k):
-                    gt[r0 + q // w, c0 + q % w] = cells_t[perms[p, q]]
-                    go[r0 + q // w, c0 + q % w] = cells_o[perms[p, q]]
-                c = _window_cost(gt, go, r0, c0, h, w, tab)
+                c = _arrangement_cost(p, perms, h, w, edge, right, below)
                 if c < best - 1e-6 * (1.0 + abs(best)):
                     best = c
                     best_p = p
-            pp = best_p if best_p >= 0 else 0
-            for q in range(k):
-                gt[r0 + q // w, c0 + q % w] = cells_t[perms[pp, q]]
-                go[r0 + q // w, c0 + q % w] = cells_o[perms[pp, q]]
             if best_p >= 0:
+                for q in range(k):
+                    gt[r0 + q // w, c0 + q % w] = cells_t[perms[best_p, q]]
+                    go[r0 + q // w, c0 + q % w] = cells_o[perms[best_p, q]]
                 changed += 1
     return changed

@@ -196,3 +196,29 @@ def test_a_converged_search_with_time_left_refreshes_and_goes_on():
                            settings=SearchSettings(time_limit=3, patience=1, population=12))
     assert res.generations >= 2
     assert sorted(res.tiles.ravel().tolist()) == list(range(36))
+
+
+@settings(max_examples=30, deadline=None)
+@given(seed=st.integers(0, 2**31 - 1), shape=st.sampled_from([(2, 3), (3, 2)]), holes=st.integers(0, 4))
+def test_window_arrangements_cost_what_the_grid_costs(seed, shape, holes):
+    """The per-window seam tables price every arrangement exactly as the
+    grid's own seams do (turned and mirrored tiles, holes, grid borders)."""
+    from stitch.search import _PERMS6
+
+    rng = np.random.default_rng(seed)
+    p = _Problem(TABLE, TABLE.orientations)
+    gt, go = p.random((6, 6), rng)
+    gt.flat[rng.choice(36, holes, replace=False)] = -1
+    h, w = shape
+    r0, c0 = int(rng.integers(0, 7 - h)), int(rng.integers(0, 7 - w))
+    k = h * w
+    cells_t = gt[r0:r0 + h, c0:c0 + w].ravel().copy()
+    cells_o = go[r0:r0 + h, c0:c0 + w].ravel().copy()
+    edge, right, below = np.empty((k, k)), np.empty((k, k)), np.empty((k, k))
+    K._window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, p.tab, edge, right, below)
+    for q in rng.choice(len(_PERMS6), 20, replace=False):
+        gt[r0:r0 + h, c0:c0 + w] = cells_t[_PERMS6[q]].reshape(h, w)
+        go[r0:r0 + h, c0:c0 + w] = cells_o[_PERMS6[q]].reshape(h, w)
+        want = K._window_cost(gt, go, r0, c0, h, w, p.tab)
+        got = K._arrangement_cost(q, _PERMS6, h, w, edge, right, below)
+        assert got == pytest.approx(want, rel=1e-9, abs=1e-9)
