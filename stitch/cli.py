@@ -183,7 +183,7 @@ def _measure_help():
     from .measures import available_measures
 
     return (f"Seam measure: auto (mgc or prediction, whichever gives more best-buddy seams; "
-            f"mgc above 1,000 tiles, ~450 with quarter turns), {', '.join(available_measures())}.")
+            f"mgc alone where prediction would take over ~5 s), {', '.join(available_measures())}.")
 
 
 @app.command()

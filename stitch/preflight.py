@@ -56,8 +56,8 @@ def _estimate(n, size, bands, quarter=False):
     """Rough seconds and MB of ``solve`` (from bench/seams.py and bench/solve.py on 2 cores)."""
     blocks = 10 if quarter else 2
     seam_s = 4.5e-8 * blocks * n * n * (2 * bands * bands + 2 * size * bands + 2) / 188
-    if blocks * n * n <= AUTO_LIMIT:  # the default measure also tries prediction, ~10x dearer
-        seam_s *= 11
+    if float(n) * n * blocks * size * bands <= AUTO_LIMIT:  # the default measure also tries prediction
+        seam_s += 2.5e-8 * blocks * n * n * size * bands  # from bench timings of prediction
     search_s = 15.0 * (n / 432) if n > 50 else 2.0
     dense = blocks * n * n * 4 <= 512 * 2**20
     mem = (blocks * n * n * 4 if dense else 70 * 2**20) / 2**20 + n * 4 * size * 2 * bands * 4 / 2**20 + 250

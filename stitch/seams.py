@@ -366,11 +366,12 @@ class SeamTable:
         return np.clip(np.nan_to_num(r, nan=0.0), 0.0, 1.0)
 
 
-#: ``measure="auto"`` also tries ``prediction`` (about ten times dearer than
-#: MGC) while ``n_tiles ** 2`` times the number of cost blocks (2 upright, 10
-#: with quarter turns) stays within this: 1,000 upright tiles or about 450
-#: with quarter turns, a few seconds on two cores. Larger sets get MGC.
-AUTO_LIMIT = 2_000_000
+#: ``measure="auto"`` also tries ``prediction`` (ten to twenty times dearer
+#: than MGC) while ``n_tiles**2 * blocks * side_length * bands`` stays within
+#: this (``blocks``: 2 upright, 10 with quarter turns): about 5 s of
+#: prediction on two cores, e.g. 1,000 upright RGB tiles of 28 px or 450
+#: with quarter turns, fewer for longer sides. Larger sets get MGC alone.
+AUTO_LIMIT = 2e8
 
 #: The two measures ``auto`` chooses between, the cheaper first (it wins ties).
 AUTO_CHOICES = ("mgc", "prediction")
@@ -389,9 +390,10 @@ def best_buddy_share(table):
 
 
 def _score_auto(edges, orientations, progress, **kw):
-    n = edges.sides[0].shape[0]
+    n, _, _, bands = edges.sides[0].shape
+    length = max(s.shape[1] for s in edges.sides)
     blocks = len({(min(a, b), max(a, b), f) for a, b, f in _side_pairs(orientations)})
-    if n * n * blocks > AUTO_LIMIT:
+    if float(n) * n * blocks * length * bands > AUTO_LIMIT:
         log.info("seam measure: %s (%d tiles: too many to also try %s)", AUTO_CHOICES[0], n, AUTO_CHOICES[1])
         return score_seams(edges, orientations=orientations, measure=AUTO_CHOICES[0], progress=progress, **kw)
     tables = []

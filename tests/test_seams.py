@@ -268,13 +268,14 @@ def test_auto_scores_large_sets_with_mgc_alone(monkeypatch):
     import stitch.seams
 
     edges = _edges_of(skimage_image("gravel"), 28, 6)  # prediction's set when both are tried
-    monkeypatch.setattr(stitch.seams, "AUTO_LIMIT", 36 * 36 * 2 - 1)  # one tile pair too many
+    work = 36 * 36 * 2 * 28 * 1  # tiles squared, upright blocks, side length, bands
+    monkeypatch.setattr(stitch.seams, "AUTO_LIMIT", work - 1)
     calls = []
     progress = lambda stage, done, total: calls.append((done, total))  # noqa: E731
     assert score_seams(edges, measure="auto", progress=progress).measure == "mgc"
     one_pass = calls[-1][1]
     assert calls[-1][0] == one_pass  # reported to its end
-    monkeypatch.setattr(stitch.seams, "AUTO_LIMIT", 36 * 36 * 2)
+    monkeypatch.setattr(stitch.seams, "AUTO_LIMIT", work)
     calls.clear()
     assert score_seams(edges, measure="auto", progress=progress).measure == "prediction"
     assert calls[-1] == (2 * one_pass, 2 * one_pass)  # two passes on one bar, to its end
