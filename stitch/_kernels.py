@@ -578,6 +578,7 @@ def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
                 go[i, j] = best_o
                 if best_o != ox:
                     changed += 1
+                here = before  # cost of cell (i, j) as it now stands
                 # Swaps with candidates of the neighbours' facing sides.
                 for d in range(4):
                     ni = i + DROW[d]
@@ -604,14 +605,18 @@ def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
                         j2 = pos[y] % ncols
                         ox = go[i, j]
                         oy_old = go[i2, j2]
-                        before = _pair_cost(gt, go, i, j, i2, j2, tab)
+                        adjacent = abs(i - i2) + abs(j - j2) == 1
+                        if adjacent:
+                            before = _pair_cost(gt, go, i, j, i2, j2, tab)
+                        else:
+                            before = here + _cell_cost(gt, go, i2, j2, tab)
                         bar = before - 1e-6 * (1.0 + before)
                         gt[i, j] = y
                         go[i, j] = oy
                         gt[i2, j2] = x
                         best = np.inf
                         best_ox = ox
-                        if abs(i - i2) + abs(j - j2) == 1:
+                        if adjacent:
                             for o in range(8):
                                 if not allowed[o]:
                                     continue
@@ -639,6 +644,7 @@ def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
                             pos[y] = i * ncols + j
                             pos[x] = i2 * ncols + j2
                             changed += 1
+                            here = _cell_cost(gt, go, i, j, tab)
                         else:
                             gt[i, j] = x
                             go[i, j] = ox
