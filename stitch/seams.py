@@ -396,10 +396,14 @@ def _score_auto(edges, orientations, progress, **kw):
     if float(n) * n * blocks * length * bands > AUTO_LIMIT:
         log.info("seam measure: %s (%d tiles: too many to also try %s)", AUTO_CHOICES[0], n, AUTO_CHOICES[1])
         return score_seams(edges, orientations=orientations, measure=AUTO_CHOICES[0], progress=progress, **kw)
-    tables = []
-    for i, name in enumerate(AUTO_CHOICES):
-        step = None if progress is None else (lambda stage, done, total, i=i: progress(stage, i * total + done, 2 * total))
-        tables.append(score_seams(edges, orientations=orientations, measure=name, progress=step, **kw))
+
+    def pass_progress(i):  # both passes on one bar
+        if progress is None:
+            return None
+        return lambda stage, done, total: progress(stage, i * total + done, 2 * total)
+
+    tables = [score_seams(edges, orientations=orientations, measure=name, progress=pass_progress(i), **kw)
+              for i, name in enumerate(AUTO_CHOICES)]
     shares = [best_buddy_share(t) for t in tables]
     best = int(np.argmax(shares))  # first of equals: the cheaper measure
     log.info("seam measure: %s (best-buddy share %s)", AUTO_CHOICES[best],
