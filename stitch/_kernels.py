@@ -616,29 +616,22 @@ def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
                         gt[i2, j2] = x
                         best = np.inf
                         best_ox = ox
-                        if adjacent:
+                        # Apart, the two cells' seams are independent: y's side
+                        # alone can rule the swap out (seam costs are >= 0), and
+                        # x's turns only change x's side.
+                        cy = 0.0 if adjacent else _cell_cost(gt, go, i, j, tab)
+                        if adjacent or cy < bar:
                             for o in range(8):
                                 if not allowed[o]:
                                     continue
                                 go[i2, j2] = o
-                                c = _pair_cost(gt, go, i, j, i2, j2, tab)
+                                if adjacent:
+                                    c = _pair_cost(gt, go, i, j, i2, j2, tab)
+                                else:
+                                    c = cy + _cell_cost(gt, go, i2, j2, tab)
                                 if c < best:
                                     best = c
                                     best_ox = o
-                        else:
-                            # Apart, the two cells' seams are independent: y's
-                            # side alone can rule the swap out (seam costs are
-                            # >= 0), and x's turns only change x's side.
-                            cy = _cell_cost(gt, go, i, j, tab)
-                            if cy < bar:
-                                for o in range(8):
-                                    if not allowed[o]:
-                                        continue
-                                    go[i2, j2] = o
-                                    c = cy + _cell_cost(gt, go, i2, j2, tab)
-                                    if c < best:
-                                        best = c
-                                        best_ox = o
                         if best < bar:
                             go[i2, j2] = best_ox
                             pos[y] = i * ncols + j
@@ -654,31 +647,6 @@ def improve(gt, go, n, tab, cand, allowed, fixed, max_passes, per_side):
         if changed == 0:
             break
     return moves
-
-
-@njit(cache=True, nogil=True)
-def _window_cost(gt, go, r0, c0, h, w, tab):
-    """Exact cost of every seam touching the window, each counted once."""
-    nrows, ncols = gt.shape
-    total = 0.0
-    for i in range(r0, r0 + h):
-        for j in range(c0, c0 + w):
-            x = gt[i, j]
-            if x < 0:
-                continue
-            for d in range(4):
-                ni = i + DROW[d]
-                nj = j + DCOL[d]
-                if ni < 0 or nj < 0 or ni >= nrows or nj >= ncols:
-                    continue
-                y = gt[ni, nj]
-                if y < 0:
-                    continue
-                inside = r0 <= ni < r0 + h and c0 <= nj < c0 + w
-                if inside and (d == 0 or d == 3):
-                    continue  # counted from the other cell
-                total += seam_cost(tab, x, go[i, j], d, y, go[ni, nj])
-    return total
 
 
 @njit(cache=True, nogil=True)
