@@ -226,6 +226,19 @@ class Pins:
         return (t, r, c, np.array([-1, -1], np.int64), upright)
 
 
+def _grid_seams(grid):
+    """The seams of a grid, to the right then below, as ``(ok, slot_a, slot_b,
+    flip)`` arrays shaped like those seams; ``ok`` is False where a hole
+    meets (the slots there are meaningless)."""
+    gt, go = grid
+    for d, sl_a, sl_b in ((1, np.s_[:, :-1], np.s_[:, 1:]), (2, np.s_[:-1, :], np.s_[1:, :])):
+        a_t, a_o, b_t, b_o = gt[sl_a], go[sl_a], gt[sl_b], go[sl_b]
+        ok = (a_t >= 0) & (b_t >= 0)
+        sa = np.where(ok, 4 * a_t + K.FACE[a_o, d], 0)
+        sb = np.where(ok, 4 * b_t + K.FACE[b_o, (d + 2) % 4], 0)
+        yield ok, sa, sb, (a_o >= 4) != (b_o >= 4)
+
+
 class _Problem:
     """Arrays the kernels need, gathered once."""
 
@@ -297,17 +310,10 @@ class _Problem:
         from scipy.sparse import coo_matrix
         from scipy.sparse.csgraph import connected_components
 
-        gt, go = grid
+        gt = grid[0]
         rows, cols = gt.shape
-        bb_seam = []
-        for d, sl_a, sl_b in ((1, np.s_[:, :-1], np.s_[:, 1:]), (2, np.s_[:-1, :], np.s_[1:, :])):
-            a_t, a_o, b_t, b_o = gt[sl_a], go[sl_a], gt[sl_b], go[sl_b]
-            ok = (a_t >= 0) & (b_t >= 0)
-            sa = np.where(ok, 4 * a_t + K.FACE[a_o, d], 0)
-            sb = 4 * b_t + K.FACE[b_o, (d + 2) % 4]
-            flip = (a_o >= 4) != (b_o >= 4)
-            bb_seam.append(ok & (self.bb[sa] == 2 * sb + flip))
-        h, v = bb_seam  # h: (rows, cols-1) seams to the right; v: (rows-1, cols) seams below
+        # h: (rows, cols-1) seams to the right; v: (rows-1, cols) seams below
+        h, v = (ok & (self.bb[sa] == 2 * sb + flip) for ok, sa, sb, flip in _grid_seams(grid))
         if loops:
             square = h[:-1, :] & h[1:, :] & v[:, :-1] & v[:, 1:]  # (rows-1, cols-1)
             h_ok = np.zeros_like(h)
@@ -346,15 +352,23 @@ class _Problem:
         return K.greedy(0, 0, rows, cols, self.n, self.tab, self.cand, self.second, self.bb, self.allowed, kfree,
                         pins)
 
+    def partners(self, grid):
+        """Partner code of every side slot in a grid (see :func:`stitch._kernels.partners`)."""
+        return K.partners(grid[0], grid[1], self.n)
+
     def buddy_seams(self, grid):
         """Number of best-buddy pairs a grid realises."""
-        p = K.partners(grid[0], grid[1], self.n)
+        p = self.partners(grid)
         return int(np.sum((p >= 0) & (p == self.bb)))
 
     def costs(self, grid):
         """Search objective and plain total seam cost (see :func:`stitch._kernels.fitness`)."""
         objective, total = K.fitness(grid[0], grid[1], self.tab, self.bonus)
         return float(objective), float(total)
+
+    def costs_of(self, grids):
+        """:meth:`costs` of several grids, as two arrays."""
+        return np.array([self.costs(g) for g in grids], float).reshape(-1, 2).T
 
     def fitness(self, grid):
         """Search objective."""
@@ -366,17 +380,12 @@ class _Problem:
 
     def normalized_cost(self, grid):
         """Mean of cost / second-best over the seams (comparable across shapes)."""
-        gt, go = grid
         total, count = 0.0, 0
-        for d, sl_a, sl_b in ((1, np.s_[:, :-1], np.s_[:, 1:]), (2, np.s_[:-1, :], np.s_[1:, :])):
-            a_t, a_o, b_t, b_o = gt[sl_a], go[sl_a], gt[sl_b], go[sl_b]
-            ok = (a_t >= 0) & (b_t >= 0)
+        for ok, sa, sb, flip in _grid_seams(grid):
             if not ok.any():
                 continue
-            sa = 4 * a_t[ok] + K.FACE[a_o[ok], d]
-            sb = 4 * b_t[ok] + K.FACE[b_o[ok], (d + 2) % 4]
-            flip = (a_o[ok] >= 4) != (b_o[ok] >= 4)
-            c = self.table.cost(sa, sb, flip.astype(int))
+            sa, sb = sa[ok], sb[ok]
+            c = self.table.cost(sa, sb, flip[ok].astype(int))
             sec = np.maximum(np.minimum(self.second[sa], self.second[sb]), 1e-12)
             total += float(np.sum(np.minimum(c / sec, 10.0)))
             count += int(ok.sum())
@@ -607,6 +616,8 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     seeds = [int(t) for t in ranking[1:]] if not problem.pins else []  # with pins every greedy run starts alike
     rng.shuffle(seeds)
 
+    generation = 0
+
     def greedy_runs(count, share):
         out = []
         while seeds and len(out) < count and not _past(deadline, share, start):
@@ -617,12 +628,11 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             out.append(g)
         return out
 
-    generation = 0
-    population += greedy_runs(n_greedy - 1, 0.25)
     def tick():
         if progress is not None:
             progress("search", generation, max_gen, "regrowing segments")
 
+    population += greedy_runs(n_greedy - 1, 0.25)
     if settings.regrow:
         population[0], _ = _regrow(problem, first, settings, deadline, tick=tick, pool=pool)
     if not _past(deadline, 0.5, start):
@@ -630,15 +640,12 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
     while len(population) < pop_size:
         population.append(problem.random(shape, rng))
     # costs: the search objective; raws: plain total seam cost (for the history)
-    costs, raws = np.array([problem.costs(g) for g in population]).T
-    parts = [K.partners(g[0], g[1], n) for g in population]
+    costs, raws = problem.costs_of(population)
+    parts = [problem.partners(g) for g in population]
 
     best_hist, mean_hist = [], []
     stale = 0
     best_cost = costs.min()
-
-    def partners(g):
-        return K.partners(g[0], g[1], n)
 
     while generation < max_gen:
         if deadline is not None and time.perf_counter() > deadline:
@@ -654,8 +661,8 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             log.info("generation %d: population refreshed with %d greedy placements", generation, len(fresh))
             keep = np.argsort(costs, kind="stable")[: pop_size - len(fresh)]
             population = [population[i] for i in keep] + fresh
-            parts = [parts[i] for i in keep] + [partners(g) for g in fresh]
-            fresh_costs, fresh_raws = np.array([problem.costs(g) for g in fresh]).reshape(-1, 2).T
+            parts = [parts[i] for i in keep] + [problem.partners(g) for g in fresh]
+            fresh_costs, fresh_raws = problem.costs_of(fresh)
             costs = np.concatenate([costs[keep], fresh_costs])
             raws = np.concatenate([raws[keep], fresh_raws])
             stale = 0
@@ -706,7 +713,7 @@ def _evolve(problem, shape, first, ranking, settings, rng, progress, shape_score
             if c < new_costs[top]:
                 worst = elite + int(np.argmax(new_costs[elite:]))
                 new_pop[worst], new_costs[worst], new_raws[worst] = g, c, r
-        new_parts = [parts[i] for i in order[:elite]] + list(pool.map(partners, new_pop[elite:]))
+        new_parts = [parts[i] for i in order[:elite]] + list(pool.map(problem.partners, new_pop[elite:]))
         population, parts, costs, raws = new_pop, new_parts, np.array(new_costs), np.array(new_raws)
         generation += 1
         gen_best = float(costs.min())
