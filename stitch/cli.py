@@ -21,6 +21,7 @@ import typer
 
 from . import __version__
 from .errors import StitchError
+from .measures import DEFAULT_MEASURE
 
 app = typer.Typer(
     name="stitch",
@@ -61,13 +62,11 @@ def _errors(verbose, quiet=False):
                 raise
             typer.echo(f"error: {exc}", err=True)
             raise typer.Exit(code=1) from None
-        except KeyboardInterrupt:
-            typer.echo("interrupted: no partial output was left", err=True)
-            raise typer.Exit(code=130) from None
-        except SystemError as exc:
+        except (KeyboardInterrupt, SystemError) as exc:
             # Ctrl-C while a compiled kernel runs surfaces when it returns, as
             # a SystemError raised while the KeyboardInterrupt was pending.
-            if verbose or not isinstance(exc.__context__ or exc.__cause__, KeyboardInterrupt):
+            if isinstance(exc, SystemError) and (
+                    verbose or not isinstance(exc.__context__ or exc.__cause__, KeyboardInterrupt)):
                 raise
             typer.echo("interrupted: no partial output was left", err=True)
             raise typer.Exit(code=130) from None
@@ -180,10 +179,10 @@ def main_callback(
 
 
 def _measure_help():
-    from .measures import available_measures
+    from .seams import measure_names
 
-    return (f"Seam measure: auto (mgc or prediction, whichever gives more best-buddy seams; "
-            f"mgc alone where prediction would take over ~5 s), {', '.join(available_measures())}.")
+    return (f"Seam measure: {', '.join(measure_names())}. auto: mgc or prediction, whichever gives more "
+            f"best-buddy seams (mgc alone where prediction would take over ~5 s).")
 
 
 @app.command()
@@ -193,7 +192,7 @@ def solve(
     grid: Annotated[Optional[str], typer.Option(help="Grid as ROWSxCOLS; inferred when not given.")] = None,
     rotations: Annotated[int, typer.Option(help="Turns a tile may need: 0 none, 180 half turns, 90 any quarter turn.")] = 0,
     mirrored: Annotated[bool, typer.Option("--mirrored", help="Tiles may also be mirrored left-right.")] = False,
-    seam: Annotated[str, typer.Option(help=_measure_help())] = "auto",
+    seam: Annotated[str, typer.Option(help=_measure_help())] = DEFAULT_MEASURE,
     search: Annotated[str, typer.Option(help="Search strategy: evolution or greedy.")] = "evolution",
     population: Annotated[int, typer.Option(help="Placements per generation (0: by tile count).")] = 0,
     generations: Annotated[int, typer.Option(help="Most generations (0: by tile count).")] = 0,
@@ -366,10 +365,10 @@ def inspect(
 @app.command()
 def plugins():
     """List the seam measures and search strategies installed (built in and by plugins)."""
-    from .measures import available_measures
     from .search import available_searches
+    from .seams import measure_names
 
-    typer.echo(f"seam measures (--seam): auto, {', '.join(available_measures())}")
+    typer.echo(f"seam measures (--seam): {', '.join(measure_names())}")
     typer.echo(f"search strategies (--search): {', '.join(available_searches())}")
 
 

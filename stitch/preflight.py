@@ -16,7 +16,7 @@ import numpy as np
 from .errors import StitchError
 from .georef import anchor_cells
 from .search import candidate_shapes
-from .seams import AUTO_LIMIT
+from .seams import auto_tries_prediction
 from .tiles import read_tileset
 
 __all__ = ["Inspection", "inspect_tiles"]
@@ -56,7 +56,7 @@ def _estimate(n, size, bands, quarter=False):
     """Rough seconds and MB of ``solve`` (from bench/seams.py and bench/solve.py on 2 cores)."""
     blocks = 10 if quarter else 2
     seam_s = 4.5e-8 * blocks * n * n * (2 * bands * bands + 2 * size * bands + 2) / 188
-    if float(n) * n * blocks * size * bands <= AUTO_LIMIT:  # the default measure also tries prediction
+    if auto_tries_prediction(n, blocks, size, bands):  # the default measure also scores with prediction
         seam_s += 2.5e-8 * blocks * n * n * size * bands  # from bench timings of prediction
     search_s = 15.0 * (n / 432) if n > 50 else 2.0
     dense = blocks * n * n * 4 <= 512 * 2**20

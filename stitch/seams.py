@@ -31,9 +31,11 @@ __all__ = [
     "AUTO_LIMIT",
     "DEFAULT_MEASURE",
     "SeamTable",
+    "auto_tries_prediction",
     "available_measures",
     "best_buddy_share",
     "band_scaling",
+    "measure_names",
     "normalize_strips",
     "score_seams",
     "seam_block",
@@ -389,11 +391,23 @@ def best_buddy_share(table):
     return float(np.mean(table.best_buddies[live] >= 0)) if live.any() else 0.0
 
 
+def auto_tries_prediction(n_tiles, blocks, side_length, bands):
+    """Whether ``measure="auto"`` scores a set with prediction as well as MGC
+    (see :data:`AUTO_LIMIT`); ``blocks`` is the number of cost blocks the
+    allowed orientations need (2 upright, 10 with quarter turns)."""
+    return float(n_tiles) * n_tiles * blocks * side_length * bands <= AUTO_LIMIT
+
+
+def measure_names():
+    """What ``measure`` accepts by name: ``"auto"``, then every registered measure."""
+    return [AUTO, *available_measures()]
+
+
 def _score_auto(edges, orientations, progress, **kw):
     n, _, _, bands = edges.sides[0].shape
     length = max(s.shape[1] for s in edges.sides)
     blocks = len({(min(a, b), max(a, b), f) for a, b, f in _side_pairs(orientations)})
-    if float(n) * n * blocks * length * bands > AUTO_LIMIT:
+    if not auto_tries_prediction(n, blocks, length, bands):
         log.info("seam measure: %s (%d tiles: too many to also try %s)", AUTO_CHOICES[0], n, AUTO_CHOICES[1])
         return score_seams(edges, orientations=orientations, measure=AUTO_CHOICES[0], progress=progress, **kw)
 
