@@ -24,14 +24,13 @@ import numpy as np
 
 from stitch.layout import allowed_orientations
 from stitch.seams import score_seams
-from stitch.tiles import EdgeStrips, side_strips
+from stitch.tiles import EdgeStrips
 
 MEASURES = ("ssd", "mgc", "prediction", "mgc+prediction")
 
 
 def _edges_from_tiles(tiles):
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    return EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    return EdgeStrips.from_pixels(tiles)
 
 
 def _random_edges(n, size, rng):

@@ -27,7 +27,7 @@ def _puzzle(side, quarter=False):
     from skimage import data
 
     from stitch.seams import score_seams
-    from stitch.tiles import EdgeStrips, side_strips
+    from stitch.tiles import EdgeStrips
 
     img = np.moveaxis(data.astronaut(), -1, 0).astype(np.float32)
     tiles = [img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)] for r in range(side) for c in range(side)]
@@ -36,8 +36,7 @@ def _puzzle(side, quarter=False):
     if quarter:
         turns = np.random.default_rng(1).integers(4, size=len(tiles))
         tiles = [np.ascontiguousarray(np.rot90(t, k, axes=(1, 2))) for t, k in zip(tiles, turns)]
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    edges = EdgeStrips.from_pixels(tiles)
     return score_seams(edges, orientations=QUARTER if quarter else (0,))
 
 

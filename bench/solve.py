@@ -34,7 +34,7 @@ from stitch.layout import Placement, allowed_orientations, normalize_frame
 from stitch.puzzles import score_placement
 from stitch.search import SearchSettings, _Problem, search_placement
 from stitch.seams import score_seams
-from stitch.tiles import EdgeStrips, orient, side_strips
+from stitch.tiles import EdgeStrips, orient
 
 TILE = 28
 
@@ -83,8 +83,7 @@ def _puzzle(img, rows, cols, tile, turns, rng):
         tiles.append(orient(img[:, r * tile:(r + 1) * tile, c * tile:(c + 1) * tile].astype(np.float32), rot[k]))
     names = tuple(map(str, range(n)))
     key = Placement(names, (rows, cols), perm // cols, perm % cols, (-rot) % 4, np.zeros(n, bool))
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    return EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides)), key
+    return EdgeStrips.from_pixels(tiles), key
 
 
 def _placement(grid, names, turns):

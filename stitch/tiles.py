@@ -149,6 +149,17 @@ class EdgeStrips:
     sides: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
     valid: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
 
+    @classmethod
+    def from_pixels(cls, tiles):
+        """Edge strips of tiles held in memory, every pixel valid.
+
+        ``tiles`` is a sequence of ``(bands, rows, cols)`` arrays of one shape
+        (turned or mirrored views are fine).
+        """
+        strips = [side_strips(np.ascontiguousarray(t)) for t in tiles]
+        sides = tuple(np.stack([st[s] for st in strips]) for s in range(4))
+        return cls(sides, tuple(np.ones(x.shape[:-1], bool) for x in sides))
+
 
 @dataclass(frozen=True)
 class TileSet:

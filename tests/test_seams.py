@@ -9,7 +9,7 @@ from conftest import skimage_image
 from stitch.layout import allowed_orientations, facing_side
 from stitch.measures import get_measure, mgc, ssd
 from stitch.seams import band_scaling, score_seams
-from stitch.tiles import EdgeStrips, orient, side_strips
+from stitch.tiles import EdgeStrips, orient
 
 
 def _mgc_reference(left, right):
@@ -69,8 +69,7 @@ def _tiles(n=6, size=16):
 def test_table_matches_physically_turned_and_mirrored_tiles(measure):
     """Every lookup equals the measure on the two tiles turned and set side by side."""
     tiles = _tiles()
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    edges = EdgeStrips.from_pixels(tiles)
     orients = allowed_orientations(90, True)
     table = score_seams(edges, orientations=orients, measure=measure, k=8)
     mean, scale = band_scaling(edges.sides)
@@ -99,8 +98,7 @@ def test_table_matches_physically_turned_and_mirrored_tiles(measure):
 
 def test_ssd_table_symmetric_under_swapping_pair_and_side():
     tiles = _tiles(6)
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    edges = EdgeStrips.from_pixels(tiles)
     table = score_seams(edges, orientations=allowed_orientations(90, True), measure="ssd")
     a, b = np.meshgrid(np.arange(24), np.arange(24), indexing="ij")
     for f in (0, 1):
@@ -110,8 +108,7 @@ def test_ssd_table_symmetric_under_swapping_pair_and_side():
 
 def test_candidates_sorted_and_best_buddies_mutual():
     tiles = _tiles(9)
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    edges = EdgeStrips.from_pixels(tiles)
     table = score_seams(edges, orientations=(0,), k=4)
     costs = table.candidate_costs
     finite = np.isfinite(costs)
@@ -129,8 +126,7 @@ def test_blank_tiles_score_finite():
     tiles = _tiles(4)
     tiles.append(np.zeros_like(tiles[0]))
     tiles.append(np.full_like(tiles[0], 7.0))
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    edges = EdgeStrips.from_pixels(tiles)
     table = score_seams(edges, orientations=allowed_orientations(90, False))
     off_diag = ~np.eye(len(tiles), dtype=bool)
     assert np.isfinite(table.blocks[:, off_diag]).all()
@@ -204,8 +200,7 @@ def test_blocked_topk_equals_dense(monkeypatch, measure):
     import stitch.seams as seams
 
     tiles = _tiles(9)
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    edges = EdgeStrips.from_pixels(tiles)
     orients = allowed_orientations(90, True)
     dense = score_seams(edges, orientations=orients, measure=measure, k=5, dense=True)
     monkeypatch.setattr(seams, "CHUNK_BYTES", 4 * 9 * 2)  # two rows per chunk
@@ -233,8 +228,7 @@ def _edges_of(img, px, side):
     """Edge strips of ``side x side`` tiles of ``px`` in reading order."""
     tiles = [img[:, px * r:px * (r + 1), px * c:px * (c + 1)].astype(np.float32)
              for r in range(side) for c in range(side)]
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    return EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    return EdgeStrips.from_pixels(tiles)
 
 
 def _ranked_first(table, side):

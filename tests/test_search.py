@@ -12,14 +12,13 @@ from stitch.pipeline import SolveOptions, solve
 from stitch.puzzles import cut_raster, score_placement
 from stitch.search import Pins, _Problem
 from stitch.seams import score_seams
-from stitch.tiles import EdgeStrips, side_strips
+from stitch.tiles import EdgeStrips
 
 
 def _table(side=6, orients=(0,)):
     img = skimage_image("coffee")[:, 60:60 + 28 * side, 150:150 + 28 * side].astype(np.float32)
     tiles = [img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)] for r in range(side) for c in range(side)]
-    sides = [np.stack([side_strips(t)[s] for t in tiles]) for s in range(4)]
-    edges = EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides))
+    edges = EdgeStrips.from_pixels(tiles)
     return score_seams(edges, orientations=orients)
 
 
@@ -153,10 +152,8 @@ def _turned_astronaut(px, shuffle=False):
              for r in range(side) for c in range(side)]
     if shuffle:
         tiles = [tiles[i] for i in rng.permutation(len(tiles))]
-    sides = [np.stack([side_strips(np.ascontiguousarray(t))[s] for t in tiles]) for s in range(4)]
     orients = allowed_orientations(90, False)
-    table = score_seams(EdgeStrips(tuple(sides), tuple(np.ones(x.shape[:-1], bool) for x in sides)),
-                        orientations=orients)
+    table = score_seams(EdgeStrips.from_pixels(tiles), orientations=orients)
     return table, orients
 
 
