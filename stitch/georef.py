@@ -19,6 +19,7 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
+import affine
 import numpy as np
 import rasterio.transform
 from affine import Affine
@@ -286,19 +287,20 @@ def world_file_path(raster_path):
 
 
 def world_file_text(transform):
-    """The six lines of a world file for ``transform``.
+    """The six lines of a world file for ``transform`` (:func:`affine.dumpsw`).
 
     Lines are A, D, B, E, C, F: x pixel size, the two rotation terms, y pixel
     size (negative for north-up), then the map coordinate of the *centre* of
     the upper-left pixel, which is the corner plus half a pixel.
     """
-    t = transform
-    c, f = t @ (0.5, 0.5)
-    return "".join(f"{v!r}\n" for v in (float(t.a), float(t.d), float(t.b), float(t.e), float(c), float(f)))
+    # Plain floats: dumpsw writes each term's repr, and a numpy scalar's repr
+    # is no number a reader can parse.
+    return affine.dumpsw(Affine(*(float(v) for v in tuple(transform)[:6])))
 
 
 def read_world_file(path):
-    """Read a world file into an :class:`~affine.Affine` (corner convention).
+    """Read a world file into an :class:`~affine.Affine` (corner convention)
+    with :func:`affine.loadsw`.
 
     Raises
     ------
@@ -310,17 +312,16 @@ def read_world_file(path):
         text = path.read_text(encoding="ascii", errors="replace")
     except OSError as exc:
         raise GeoreferenceError(f"cannot read world file {str(path)!r}: {exc.strerror}") from None
-    values = []
-    for token in text.split():
-        try:
-            values.append(float(token))
-        except ValueError:
-            raise GeoreferenceError(f"world file {path.name!r} holds {token[:20]!r}, not a number") from None
-    if len(values) != 6 or not all(map(math.isfinite, values)):
-        raise GeoreferenceError(f"world file {path.name!r} must hold six finite numbers, found {len(values)}")
-    a, d, b, e, c, f = values
-    if a * e - b * d == 0:
+    found = len(text.split())
+    if found != 6:
+        raise GeoreferenceError(f"world file {path.name!r} must hold six numbers, one a line; found {found} values")
+    try:
+        transform = affine.loadsw(text)
+    except ValueError as exc:
+        raise GeoreferenceError(f"world file {path.name!r} holds a value that is not a number ({exc})") from None
+    if not all(map(math.isfinite, tuple(transform)[:6])):
+        raise GeoreferenceError(f"world file {path.name!r} must hold six finite numbers")
+    if transform.determinant == 0:
         raise GeoreferenceError(f"world file {path.name!r} has a zero pixel size or collinear axes")
-    centre = Affine(a, b, c, d, e, f)
-    return centre @ Affine.translation(-0.5, -0.5)
+    return transform
 
