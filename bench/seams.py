@@ -23,7 +23,7 @@ import tracemalloc
 import numpy as np
 
 from stitch.layout import allowed_orientations
-from stitch.seams import score_seams
+from stitch.seams import count_blocks, score_seams
 from stitch.tiles import EdgeStrips
 
 MEASURES = ("ssd", "mgc", "prediction", "mgc+prediction")
@@ -36,12 +36,6 @@ def _edges_from_tiles(tiles):
 def _random_edges(n, size, rng):
     sides = tuple(rng.normal(120, 40, (n, size, 2, 3)).astype(np.float32) for _ in range(4))
     return EdgeStrips(sides, tuple(np.ones(x.shape[:-1], bool) for x in sides))
-
-
-def _n_blocks(orients):
-    from stitch.seams import _side_pairs
-
-    return len({tuple(sorted((a, b))) + (f,) for a, b, f in _side_pairs(orients)})
 
 
 def _plain_matmul(n, width, blocks, rng):
@@ -65,7 +59,7 @@ def speed(configs, measures):
     for n, size in configs:
         edges = _random_edges(n, size, rng)
         for turns, orients in (("upright", (0,)), ("quarter", allowed_orientations(90, False))):
-            nb = _n_blocks(orients)
+            nb = count_blocks(orients)
             work = n * n * nb * size
             for m in measures:
                 if m in ("prediction", "mgc+prediction") and rate is not None and rate * work > 60:

@@ -22,6 +22,7 @@ import typer
 from . import __version__
 from .errors import StitchError
 from .measures import DEFAULT_MEASURE
+from .tiles import MAX_TILE_PIXELS
 
 app = typer.Typer(
     name="stitch",
@@ -214,7 +215,7 @@ def solve(
     report: Annotated[Optional[Path], typer.Option(help="Report folder (default: OUT's stem + _report).")] = None,
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
     cog: Annotated[bool, typer.Option("--cog", help="Write a Cloud Optimized GeoTIFF (GDAL's COG driver).")] = False,
-    max_tile_pixels: Annotated[int, typer.Option(help="Refuse tiles whose header claims more pixels.")] = 64_000_000,
+    max_tile_pixels: Annotated[int, typer.Option(help="Refuse tiles whose header claims more pixels.")] = MAX_TILE_PIXELS,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,

@@ -15,8 +15,9 @@ import numpy as np
 
 from .errors import StitchError
 from .georef import anchor_cells
+from .layout import allowed_orientations
 from .search import candidate_shapes
-from .seams import auto_tries_prediction
+from .seams import auto_tries_prediction, count_blocks, keeps_dense
 from .tiles import read_tileset
 
 __all__ = ["Inspection", "inspect_tiles"]
@@ -54,13 +55,12 @@ class Inspection:
 
 def _estimate(n, size, bands, quarter=False):
     """Rough seconds and MB of ``solve`` (from bench/seams.py and bench/solve.py on 2 cores)."""
-    blocks = 10 if quarter else 2
+    blocks = count_blocks(allowed_orientations(90 if quarter else 0, False))
     seam_s = 4.5e-8 * blocks * n * n * (2 * bands * bands + 2 * size * bands + 2) / 188
     if auto_tries_prediction(n, blocks, size, bands):  # the default measure also scores with prediction
         seam_s += 2.5e-8 * blocks * n * n * size * bands  # from bench timings of prediction
     search_s = 15.0 * (n / 432) if n > 50 else 2.0
-    dense = blocks * n * n * 4 <= 512 * 2**20
-    mem = (blocks * n * n * 4 if dense else 70 * 2**20) / 2**20 + n * 4 * size * 2 * bands * 4 / 2**20 + 250
+    mem = (blocks * n * n * 4 if keeps_dense(n, blocks) else 70 * 2**20) / 2**20 + n * 4 * size * 2 * bands * 4 / 2**20 + 250
     return seam_s + search_s + 5, mem
 
 

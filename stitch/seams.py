@@ -33,8 +33,10 @@ __all__ = [
     "SeamTable",
     "auto_tries_prediction",
     "available_measures",
-    "best_buddy_share",
     "band_scaling",
+    "best_buddy_share",
+    "count_blocks",
+    "keeps_dense",
     "measure_names",
     "normalize_strips",
     "score_seams",
@@ -124,6 +126,24 @@ def _side_pairs(orientations):
                 pairs.add((a, b, f))
                 pairs.add((b, a, f))
     return sorted(pairs)
+
+
+def count_blocks(orientations):
+    """Cost blocks a seam table scores for these orientations: one per
+    unordered pair of sides (and flip) that can meet.
+
+    Examples
+    --------
+    >>> count_blocks((0,)), count_blocks((0, 1, 2, 3))
+    (2, 10)
+    """
+    return len({(min(a, b), max(a, b), f) for a, b, f in _side_pairs(orientations)})
+
+
+def keeps_dense(n_tiles, blocks):
+    """Whether a table of ``blocks`` cost blocks for ``n_tiles`` tiles keeps
+    every cost (they fit in :data:`DENSE_LIMIT_BYTES`) or only candidates."""
+    return blocks * n_tiles * n_tiles * 4 <= DENSE_LIMIT_BYTES
 
 
 def _row_valid(valid):
@@ -406,8 +426,7 @@ def measure_names():
 def _score_auto(edges, orientations, progress, **kw):
     n, _, _, bands = edges.sides[0].shape
     length = max(s.shape[1] for s in edges.sides)
-    blocks = len({(min(a, b), max(a, b), f) for a, b, f in _side_pairs(orientations)})
-    if not auto_tries_prediction(n, blocks, length, bands):
+    if not auto_tries_prediction(n, count_blocks(orientations), length, bands):
         log.info("seam measure: %s (%d tiles: too many to also try %s)", AUTO_CHOICES[0], n, AUTO_CHOICES[1])
         return score_seams(edges, orientations=orientations, measure=AUTO_CHOICES[0], progress=progress, **kw)
 
@@ -473,7 +492,7 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
         transposed[b, a, f] = a != b
         unique.append((a, b, f))
     if dense is None:
-        dense = len(unique) * n * n * 4 <= DENSE_LIMIT_BYTES
+        dense = keeps_dense(n, len(unique))
     blocks = np.empty((len(unique) if dense else 0, n, n), np.float32)
 
     k = max(2, min(k, 8 * n))
