@@ -41,10 +41,10 @@ def _puzzle(side, quarter=False):
 
 
 def _time_kernels(side, repeats, quarter=False):
-    from stitch import _kernels as K
-    from stitch.search import _PERMS6, _Problem
+    from stitch.search import _polish
+    from stitch.search.problem import PERMS6, Problem
 
-    p = _Problem(_puzzle(side, quarter), QUARTER if quarter else (0,))
+    p = Problem(_puzzle(side, quarter), QUARTER if quarter else (0,))
     shape = (side, side)
     timings = {}
 
@@ -56,13 +56,14 @@ def _time_kernels(side, repeats, quarter=False):
         timings[name] = (time.perf_counter() - t0) / repeats
 
     grid = p.greedy(0, shape, 3)
-    parts = K.partners(grid[0], grid[1], p.n)
+    parts = p.partners(grid)
     timed("greedy", lambda: p.greedy(0, shape, 3))
     timed("crossover", lambda: p.crossover(parts, parts, 1, 0, shape, 0.005, 1))
-    timed("swap pass", lambda: K.improve(grid[0].copy(), grid[1].copy(), p.n, p.tab, p.cand,
-                                         p.allowed, p.fixed, 1, 4))
-    timed("window pass", lambda: K.permute_windows(grid[0].copy(), grid[1].copy(), 2, 3, _PERMS6, p.tab,
-                                                   p.fixed, np.full_like(p.bb, -1)))
+    timed("swap pass", lambda: p.swap_pass(grid.copy(), 1))
+    # 2 x 3 windows with no best buddies, so no window is skipped as settled.
+    unsettled = p.lookup._replace(best_buddies=np.full_like(p.lookup.best_buddies, -1))
+    timed("window pass", lambda: _polish.permute_windows(grid.tiles.copy(), grid.orientations.copy(), 2, 3, PERMS6,
+                                                         unsettled, p.fixed))
     return timings
 
 

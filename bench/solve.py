@@ -32,7 +32,8 @@ import numpy as np
 
 from stitch.layout import Placement, allowed_orientations, normalize_frame
 from stitch.puzzles import score_placement
-from stitch.search import SearchSettings, _Problem, search_placement
+from stitch.search import SearchSettings, search_placement
+from stitch.search.problem import Problem
 from stitch.seams import score_seams
 from stitch.tiles import EdgeStrips, orient
 
@@ -88,12 +89,12 @@ def _puzzle(img, rows, cols, tile, turns, rng):
 
 def _placement(grid, names, turns):
     p = Placement.from_grid(names, grid[0], grid[1])
-    return normalize_frame(p, turns=(0, 1, 2, 3) if turns else (0,))
+    return normalize_frame(p, orientations=allowed_orientations(90, False) if turns else (0,))
 
 
 def _plain_ga(table, shape, orients, seconds, rng):
     """Random-permutation GA with order crossover and swap mutation."""
-    prob = _Problem(table, orients)
+    prob = Problem(table, orients)
     n = table.n_tiles
     pop_size = 100
     orients = np.asarray(orients)
@@ -151,7 +152,7 @@ def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None, tile=T
 
 def landscape_ranking(side=40):
     """Share of true neighbours MGC ranks first on the landscape, as generated and resampled."""
-    from stitch import _kernels as K
+    from stitch.search import _lookup
 
     print("| landscape 28 px | true neighbour ranked first (MGC) |")
     print("|---|---:|")
@@ -161,7 +162,7 @@ def landscape_ranking(side=40):
         table = score_seams(edges, orientations=(0,))
         grid = np.full((side, side), -1, np.int64)
         grid[key.rows, key.cols] = np.arange(side * side)
-        truth = K.partners(grid, np.zeros_like(grid), side * side)
+        truth = _lookup.partners(grid, np.zeros_like(grid), side * side)
         ok = truth >= 0
         share = np.mean(table.candidates[ok, 0] == truth[ok])
         print(f"| {side}x{side}, {'resampled (0.7 px Gaussian)' if resample else 'as generated'} | {share:.3f} |")

@@ -22,6 +22,7 @@ import typer
 from . import __version__
 from .errors import StitchError
 from .measures import DEFAULT_MEASURE
+from .orientation import TURN_MODES
 from .tiles import MAX_TILE_PIXELS
 
 app = typer.Typer(
@@ -229,7 +230,7 @@ def solve(
     from .search import SearchSettings
 
     _setup_logging(verbose, quiet)
-    _check_choice(rotations, (0, 90, 180), "--rotations")
+    _check_choice(rotations, sorted(TURN_MODES), "--rotations")
     shape = _parse_grid(grid)
     pins = tuple(_parse_pin(p) for p in pin or ())
     with _errors(verbose, quiet):
@@ -289,7 +290,7 @@ def cut(
     from .puzzles import cut_raster, parse_tile_size
 
     _setup_logging(verbose, quiet)
-    _check_choice(rotate, (0, 90, 180), "--rotate")
+    _check_choice(rotate, sorted(TURN_MODES), "--rotate")
     with _errors(verbose, quiet):
         result = cut_raster(raster, output, parse_tile_size(tile_size), shuffle=shuffle, strip_georef=strip_georef,
                             keep_georef=keep_georef, rotate=rotate, mirror=mirror, fmt=tile_format, key_path=key,

@@ -29,6 +29,7 @@ import numpy as np
 from affine import Affine
 
 from .errors import GeoreferenceError
+from .orientation import orient_point
 
 __all__ = ["ControlPoint", "GcpFit", "fit_affine", "fit_similarity", "mosaic_point", "read_gcps", "fit_control"]
 
@@ -166,14 +167,11 @@ def fit_similarity(src, dst):
 def mosaic_point(placement, index, col, row, width, height):
     """Where a position inside a tile file lands in the mosaic, in pixels.
 
-    Follows the tile's mirror and clockwise quarter turns (see
-    :mod:`stitch.layout`); coordinates are continuous (pixel corners).
+    Follows the tile's mirror and clockwise quarter turns
+    (:func:`stitch.orientation.orient_point`); coordinates are continuous
+    (pixel corners).
     """
-    u, v, w, h = float(col), float(row), float(width), float(height)
-    if placement.mirrored[index]:
-        u = w - u
-    for _ in range(int(placement.rotations[index]) % 4):
-        u, v, w, h = h - v, u, h, w
+    u, v = orient_point(col, row, width, height, placement.rotations[index], placement.mirrored[index])
     return placement.cols[index] * width + u, placement.rows[index] * height + v
 
 

@@ -8,7 +8,8 @@ Row 0 is the top (north) row, column 0 the left (west) column.
 
 Internally an orientation is one small integer ``o = 4 * mirrored + rotation``
 (0-7), and a *side slot* ``4 * tile + side`` names one side of one tile file
-(sides 0 top, 1 right, 2 bottom, 3 left, before any turn).
+(sides 0 top, 1 right, 2 bottom, 3 left, before any turn); the arithmetic of
+both lives in :mod:`stitch.orientation`.
 """
 
 from __future__ import annotations
@@ -22,13 +23,12 @@ import numpy as np
 
 from .errors import OptionError, PlacementFileError
 from .files import write_text_atomic
+from .orientation import TURN_MODES, facing_side, turned_orientations
 
 __all__ = [
     "CSV_HEADER",
-    "ROTATION_MODES",
     "Placement",
     "allowed_orientations",
-    "facing_side",
     "format_placement_csv",
     "normalize_frame",
     "read_placement_csv",
@@ -38,36 +38,6 @@ __all__ = [
 
 #: Column names of placement.csv, in order.
 CSV_HEADER = ("tile", "row", "col", "rotation", "mirrored", "confidence")
-
-#: ``--rotations`` values: which quarter turns a tile may need.
-ROTATION_MODES = {0: (0,), 180: (0, 2), 90: (0, 1, 2, 3)}
-
-#: Cell offsets (d_row, d_col) for directions 0 up, 1 right, 2 down, 3 left.
-STEPS = ((-1, 0), (0, 1), (1, 0), (0, -1))
-
-
-def facing_side(rotation, mirrored, direction):
-    """Side of the tile file that faces ``direction`` once oriented.
-
-    Parameters
-    ----------
-    rotation : int or ndarray
-        Clockwise quarter turns.
-    mirrored : bool or ndarray
-    direction : int or ndarray
-        0 up, 1 right, 2 down, 3 left in the mosaic.
-
-    Examples
-    --------
-    A tile turned a quarter clockwise shows its old top side on the right:
-
-    >>> int(facing_side(1, False, 1))
-    0
-    """
-    rotation = np.asarray(rotation)
-    direction = np.asarray(direction)
-    return np.where(np.asarray(mirrored, bool), (rotation - direction) % 4, (direction - rotation) % 4)
-
 
 def allowed_orientations(rotations, mirrored, *, square=True):
     """Orientation codes ``4 * mirrored + rotation`` a search may use.
@@ -85,11 +55,11 @@ def allowed_orientations(rotations, mirrored, *, square=True):
     -------
     tuple of int
     """
-    if rotations not in ROTATION_MODES:
-        raise OptionError(f"rotations must be one of {sorted(ROTATION_MODES)}, not {rotations!r}")
+    if rotations not in TURN_MODES:
+        raise OptionError(f"rotations must be one of {sorted(TURN_MODES)}, not {rotations!r}")
     if rotations == 90 and not square:
         raise OptionError("quarter turns (--rotations 90) need square tiles; use --rotations 180")
-    turns = ROTATION_MODES[rotations]
+    turns = TURN_MODES[rotations]
     codes = [t for t in turns]
     if mirrored:
         codes += [4 + t for t in turns]
@@ -197,12 +167,10 @@ class Placement:
         p = self.placed
         if mirror:
             cols[p] = ncols - 1 - cols[p]
-            rot = (-rot) % 4
-            mir = ~mir
         for _ in range(quarter_turns % 4):
             rows[p], cols[p] = cols[p], nrows - 1 - rows[p]
             nrows, ncols = ncols, nrows
-            rot = (rot + 1) % 4
+        rot, mir = turned_orientations(rot, mir, quarter_turns, mirror)
         return Placement(self.names, (nrows, ncols), rows, cols, rot, mir, self.confidence)
 
     def cropped(self):
@@ -327,7 +295,7 @@ def read_placement_csv(path):
         raise PlacementFileError(f"{path.name}: {exc}") from None
 
 
-def normalize_frame(placement, *, turns=(0,), mirror=False, fit=None, anchors=None):
+def normalize_frame(placement, *, orientations=(0,), fit=None, anchors=None):
     """Choose the global turn (and mirror) nothing else fixes.
 
     Seam costs do not change when the whole mosaic is turned or mirrored, so
@@ -339,10 +307,9 @@ def normalize_frame(placement, *, turns=(0,), mirror=False, fit=None, anchors=No
     Parameters
     ----------
     placement : Placement
-    turns : sequence of int
-        Global clockwise quarter turns to consider.
-    mirror : bool
-        Also consider the mirrored mosaic.
+    orientations : sequence of int
+        The orientation codes tiles were allowed: the whole mosaic may take
+        any of their turns, and be mirrored when tiles may be.
     fit : (int, int), optional
         Only frames whose placed tiles fit in this ``rows x cols`` grid (one
         the user gave); the result then has exactly this shape.
@@ -354,6 +321,8 @@ def normalize_frame(placement, *, turns=(0,), mirror=False, fit=None, anchors=No
     Placement
         Shifted to start at row 0, column 0.
     """
+    turns = sorted({int(o) % 4 for o in orientations})
+    mirror = any(int(o) >= 4 for o in orientations)
     best, best_key = None, None
     for m in ((False, True) if mirror else (False,)):
         for k in turns:

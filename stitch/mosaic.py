@@ -23,7 +23,7 @@ from . import __version__
 from .errors import OutputError
 from .files import atomic_path, write_text_atomic
 from .georef import world_file_path, world_file_text
-from .tiles import orient
+from .orientation import orient
 
 __all__ = ["CAUTION", "choose_nodata", "mosaic_profile", "write_mosaic"]
 

@@ -32,7 +32,8 @@ from .georef import (
 from .layout import Placement, allowed_orientations, normalize_frame
 from .mosaic import write_mosaic
 from .report import check_report, report_paths, write_report
-from .search import Pins, SearchSettings, search_placement, side_confidence, tile_confidence
+from .confidence import side_confidence, tile_confidence
+from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
 from .tiles import MAX_TILE_PIXELS, read_tileset
 
@@ -225,15 +226,16 @@ def place_tiles(tileset, options=None, *, progress=None):
     table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates,
                         blank=tileset.blank, progress=progress)
     pins = _pins(tileset, options)
-    result = search_placement(table, shape=options.grid, orientations=orientations, settings=options.search,
-                              rng=options.seed, progress=progress, pins=pins, holes=options.grid is None)
+    # The table carries the orientations it was scored for; the search and
+    # the frame take them from it.
+    result = search_placement(table, shape=options.grid, settings=options.search, rng=options.seed,
+                              progress=progress, pins=pins, holes=options.grid is None)
     raw = Placement.from_grid(tileset.names, result.tiles, result.orientations)
     if pins.absolute:
         placement = raw  # the pins fix the frame and the cells
     else:
-        turns = {0: (0,), 180: (0, 2), 90: (0, 1, 2, 3)}[options.rotations]
         anchors = [i for i, g in enumerate(tileset.georefs) if g is not None]
-        placement = normalize_frame(raw, turns=turns, mirror=options.mirrored, fit=options.grid, anchors=anchors)
+        placement = normalize_frame(raw, orientations=table.orientations, fit=options.grid, anchors=anchors)
     conf = tile_confidence(placement, table, result.agreement)
     conf[tileset.blank] = 0.0
     return placement.with_confidence(conf), result, table, pins

@@ -33,8 +33,8 @@ from rasterio.windows import Window
 from .errors import OptionError, RasterReadError
 from .files import atomic_path, check_outputs, write_text_atomic
 from .georef import world_file_path, world_file_text
-from .layout import ROTATION_MODES, Placement, seam_pairs, write_placement_csv
-from .tiles import orient
+from .layout import Placement, seam_pairs, write_placement_csv
+from .orientation import TURN_MODES, unorient
 
 __all__ = ["CutResult", "Scores", "cut_raster", "parse_tile_size", "score_placement"]
 
@@ -136,8 +136,8 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
     tw, th = tile_size
     if fmt not in _FORMATS:
         raise OptionError(f"--format must be one of {', '.join(_FORMATS)}, not {fmt!r}")
-    if rotate not in ROTATION_MODES:
-        raise OptionError(f"--rotate must be one of {sorted(ROTATION_MODES)}, not {rotate!r}")
+    if rotate not in TURN_MODES:
+        raise OptionError(f"--rotate must be one of {sorted(TURN_MODES)}, not {rotate!r}")
     if rotate == 90 and tw != th:
         raise OptionError("quarter turns need square tiles; use --rotate 180 or a square --tile-size")
     driver, ext = _FORMATS[fmt]
@@ -160,7 +160,7 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         if strip_georef and keep_georef:
             keep[rng.choice(n, size=min(keep_georef, n), replace=False)] = True
         keep &= georeferenced
-        turns = np.asarray(ROTATION_MODES[rotate])
+        turns = np.asarray(TURN_MODES[rotate])
         rot = np.where(keep, 0, rng.choice(turns, size=n))
         mir = np.where(keep, False, rng.random(n) < 0.5) if mirror else np.zeros(n, bool)
         order = rng.permutation(n) if shuffle else np.arange(n)
@@ -174,11 +174,9 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
             r, c = divmod(k, cols)
             window = Window(c * tw, r * th, tw, th)
             upright = src.read(window=window)
-            # The key says: mirror (if set) then turn clockwise by rot to get upright,
-            # so the file holds the inverse: turned back, then mirrored.
-            stored = orient(upright, -rot[k])
-            if mir[k]:
-                stored = stored[..., ::-1]
+            # The key says: mirror (if set) then turn clockwise by rot to get
+            # upright, so the file holds the inverse.
+            stored = unorient(upright, rot[k], mir[k])
             transform = src.window_transform(window) if keep[k] else None
             _write_tile(out_dir / names[k], np.ascontiguousarray(stored), profile, transform,
                         src.crs if keep[k] else None, driver, overwrite=overwrite)

@@ -24,7 +24,7 @@ from numba import njit, prange
 from threadpoolctl import threadpool_limits
 
 from .errors import OptionError
-from .layout import facing_side
+from .orientation import facing_side
 from .measures import AUTO, DEFAULT_MEASURE, available_measures, call_measure, get_measure
 
 __all__ = [

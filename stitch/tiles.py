@@ -31,6 +31,7 @@ from rasterio.errors import NotGeoreferencedWarning as _GdalNotGeoreferenced
 from rasterio.errors import RasterioError
 
 from .errors import RasterReadError, TileSetError
+from .orientation import orient
 
 __all__ = [
     "RASTER_SUFFIXES",
@@ -39,7 +40,6 @@ __all__ = [
     "TileSet",
     "find_tiles",
     "is_own_output",
-    "orient",
     "read_tile",
     "read_tileset",
     "side_strips",
@@ -67,35 +67,6 @@ _SIDECARS = {".tfw", ".tifw", ".tiffw", ".pgw", ".pngw", ".jgw", ".jpgw", ".jpeg
 #: Largest tile GDAL may be asked to read, in pixels; larger headers are refused
 #: before any pixel is read (a corrupt header can claim terabytes).
 MAX_TILE_PIXELS = 64_000_000
-
-
-def orient(pixels, rotation, mirrored=False):
-    """Turn a ``(bands, rows, cols)`` array the way a placement says.
-
-    Parameters
-    ----------
-    pixels : ndarray
-        Tile pixels, bands first, as rasterio reads them.
-    rotation : int
-        Clockwise quarter turns (0-3) applied after the optional mirror.
-    mirrored : bool, optional
-        Mirror left-right first.
-
-    Returns
-    -------
-    ndarray
-        A view of ``pixels`` as it sits in the mosaic.
-
-    Examples
-    --------
-    >>> a = np.arange(4).reshape(1, 2, 2)
-    >>> orient(a, 1)[0]
-    array([[2, 0],
-           [3, 1]])
-    """
-    if mirrored:
-        pixels = pixels[..., ::-1]
-    return np.rot90(pixels, -int(rotation) % 4, axes=(-2, -1))
 
 
 def side_strips(pixels):

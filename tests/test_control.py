@@ -86,7 +86,7 @@ def test_bad_control_files(tmp_path, text, message):
 
 def test_tile_positions_follow_turns_and_mirrors():
     """A marked corner of a turned tile lands where orient() puts it."""
-    from stitch.tiles import orient
+    from stitch.orientation import orient
 
     for r in range(4):
         for m in (False, True):

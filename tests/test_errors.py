@@ -467,7 +467,8 @@ def test_random_round_trips(tmp_path_factory, rows, cols, size, dtype, bands, se
     placement = read_placement_csv(result.outputs["report_placement"])
     scores = score_placement(placement, cut.key)
     assert scores.missing == 0 and sorted(placement.names) == sorted(cut.key.names)
-    from stitch.tiles import orient, read_tile
+    from stitch.orientation import orient
+    from stitch.tiles import read_tile
 
     with rasterio.open(result.outputs["mosaic"]) as out:
         assert out.dtypes[0] == dtype and out.count == bands

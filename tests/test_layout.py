@@ -6,8 +6,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from stitch.errors import PlacementFileError
-from stitch.layout import Placement, facing_side, format_placement_csv, read_placement_csv, seam_pairs
-from stitch.tiles import orient
+from stitch.layout import Placement, format_placement_csv, read_placement_csv, seam_pairs
+from stitch.orientation import facing_side, orient
 
 
 def test_orient_matches_numpy_clockwise_turn_after_mirror():

@@ -6,10 +6,11 @@ import numpy as np
 import pytest
 
 from conftest import skimage_image
-from stitch.layout import allowed_orientations, facing_side
+from stitch.layout import allowed_orientations
+from stitch.orientation import facing_side, orient
 from stitch.measures import get_measure, mgc, ssd
 from stitch.seams import band_scaling, score_seams
-from stitch.tiles import EdgeStrips, orient
+from stitch.tiles import EdgeStrips
 
 
 def _mgc_reference(left, right):

@@ -6,11 +6,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from conftest import skimage_image, write_raster
-from stitch import _kernels as K
 from stitch.layout import allowed_orientations
 from stitch.pipeline import SolveOptions, solve
 from stitch.puzzles import cut_raster, score_placement
-from stitch.search import Pins, _Problem
+from stitch.search import Pins
+from stitch.search import _lookup, _polish
+from stitch.search.problem import PERMS6, Problem
 from stitch.seams import score_seams
 from stitch.tiles import EdgeStrips
 
@@ -34,9 +35,9 @@ def test_crossover_never_duplicates_or_drops_a_tile(seed, mutation, shape, n_pin
     cells = rng.choice(shape[0] * shape[1], n_pins, replace=False)
     pins = Pins(pin_tiles, tuple(int(c // shape[1]) for c in cells), tuple(int(c % shape[1]) for c in cells),
                 absolute=True)
-    p = _Problem(TABLE, TABLE.orientations, pins)
+    p = Problem(TABLE, TABLE.orientations, pins)
     a, b = p.random(shape, rng), p.random(shape, rng)
-    pa, pb = K.partners(a[0], a[1], 36), K.partners(b[0], b[1], 36)
+    pa, pb = _lookup.partners(a[0], a[1], 36), _lookup.partners(b[0], b[1], 36)
     child = p.crossover(pa, pb, int(rng.integers(36)), 0, shape, mutation, int(rng.integers(2**31 - 1)))
     placed = child[0][child[0] >= 0]
     assert sorted(placed.tolist()) == list(range(36))
@@ -99,7 +100,7 @@ def test_search_plugin_through_entry_points(tmp_path, monkeypatch, tiles_dir):
     (site / "rowwise_mod.py").write_text(
         "import numpy as np\n"
         "from stitch.search import search_placement, SearchSettings\n"
-        "def search(table, *, shape, orientations, settings, rng, progress, pins):\n"
+        "def search(table, *, shape, orientations, settings, rng, progress, pins, holes):\n"
         "    return search_placement(table, shape=shape, orientations=orientations, rng=rng, pins=pins,\n"
         "                            settings=SearchSettings(strategy='greedy'))\n")
     monkeypatch.syspath_prepend(str(site))
@@ -118,18 +119,19 @@ def test_segment_regrowth_mends_a_shifted_block():
     keeping one segment and placing the rest around it again does. Tiles from
     scikit-image's bundled ``coffee`` (CC0).
     """
-    from stitch.search import SearchSettings, _regrow
+    from stitch.search import SearchSettings
+    from stitch.search.regrowth import regrow, segments
 
     table = _table(6, (0,))
-    p = _Problem(table, (0,))
+    p = Problem(table, (0,))
     truth = (np.arange(36).reshape(6, 6), np.zeros((6, 6), np.int64))
     shifted = (np.roll(truth[0], 3, axis=1), truth[1].copy())
-    largest = p.segments(shifted)[0] % 6
+    largest = segments(p, shifted)[0] % 6
     assert (largest < 3).all() or (largest >= 3).all()  # no trusted seam across the fault
     polished = (shifted[0].copy(), shifted[1].copy())
     p.polish(polished, 3)
     assert p.fitness(polished) > p.fitness(truth)  # local search stays stuck
-    mended, cost = _regrow(p, shifted, SearchSettings(), deadline=None)
+    mended, cost = regrow(p, shifted, SearchSettings(), deadline=None)
     assert np.array_equal(mended[0], truth[0])
     assert cost == pytest.approx(p.fitness(truth))
 
@@ -195,19 +197,19 @@ def test_a_converged_search_with_time_left_refreshes_and_goes_on():
     assert sorted(res.tiles.ravel().tolist()) == list(range(36))
 
 
-def _window_cost(gt, go, r0, c0, h, w, tab):
+def _window_cost(gt, go, r0, c0, h, w, lookup):
     """Every seam touching a window, each counted once, read one by one from the grid."""
     rows, cols = gt.shape
     total = 0.0
     for i in range(r0, r0 + h):
         for j in range(c0, c0 + w):
             for d in range(4):
-                ni, nj = i + K.DROW[d], j + K.DCOL[d]
+                ni, nj = i + _lookup.DROW[d], j + _lookup.DCOL[d]
                 if gt[i, j] < 0 or not (0 <= ni < rows and 0 <= nj < cols) or gt[ni, nj] < 0:
                     continue
                 if r0 <= ni < r0 + h and c0 <= nj < c0 + w and d in (0, 3):
                     continue  # counted from the other cell
-                total += K.seam_cost(tab, gt[i, j], go[i, j], d, gt[ni, nj], go[ni, nj])
+                total += _lookup.seam_cost(lookup, gt[i, j], go[i, j], d, gt[ni, nj], go[ni, nj])
     return total
 
 
@@ -216,10 +218,8 @@ def _window_cost(gt, go, r0, c0, h, w, tab):
 def test_window_arrangements_cost_what_the_grid_costs(seed, shape, holes):
     """The per-window seam tables price every arrangement exactly as the
     grid's own seams do (turned and mirrored tiles, holes, grid borders)."""
-    from stitch.search import _PERMS6
-
     rng = np.random.default_rng(seed)
-    p = _Problem(TABLE, TABLE.orientations)
+    p = Problem(TABLE, TABLE.orientations)
     gt, go = p.random((6, 6), rng)
     gt.flat[rng.choice(36, holes, replace=False)] = -1
     h, w = shape
@@ -228,10 +228,11 @@ def test_window_arrangements_cost_what_the_grid_costs(seed, shape, holes):
     cells_t = gt[r0:r0 + h, c0:c0 + w].ravel().copy()
     cells_o = go[r0:r0 + h, c0:c0 + w].ravel().copy()
     edge, right, below = np.empty((k, k)), np.empty((k, k)), np.empty((k, k))
-    K._window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, p.tab, edge, right, below)
-    for q in rng.choice(len(_PERMS6), 20, replace=False):
-        gt[r0:r0 + h, c0:c0 + w] = cells_t[_PERMS6[q]].reshape(h, w)
-        go[r0:r0 + h, c0:c0 + w] = cells_o[_PERMS6[q]].reshape(h, w)
-        want = _window_cost(gt, go, r0, c0, h, w, p.tab)
-        got = K._arrangement_cost(q, _PERMS6, h, w, edge, right, below)
+    _polish._window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, p.lookup, edge, right, below)
+    for q in rng.choice(len(PERMS6), 20, replace=False):
+        gt[r0:r0 + h, c0:c0 + w] = cells_t[PERMS6[q]].reshape(h, w)
+        go[r0:r0 + h, c0:c0 + w] = cells_o[PERMS6[q]].reshape(h, w)
+        want = _window_cost(gt, go, r0, c0, h, w, p.lookup)
+        got = _polish._arrangement_cost(q, PERMS6, h, w, edge, right, below)
         assert got == pytest.approx(want, rel=1e-9, abs=1e-9)
+
