@@ -253,6 +253,14 @@ def solve(
     how = f"{s.strategy}, {s.generations} generations" if s.strategy == "evolution" else s.strategy
     typer.echo(f"placed {int(p.placed.sum())} tiles in a {p.shape[0]}x{p.shape[1]} grid "
                f"({how}, seams by {result.measure}, seed {seed})")
+    ev = s.shape_evidence
+    if ev is not None:
+        runner = (f"runner-up {ev['runner_up'][0]}x{ev['runner_up'][1]}, margin {ev['margin']:.1%}"
+                  if ev["runner_up"] else f"{ev['shapes_tried']} grid(s) tried, none a real alternative")
+        seg = ev["trusted_segment"]
+        held = (f"; largest trusted segment {seg['tiles']} tiles over {seg['box'][0]}x{seg['box'][1]} cells"
+                if seg else "")
+        typer.echo(f"grid inferred ({runner}{held})")
     g = result.georeference
     typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
     if result.control is not None:

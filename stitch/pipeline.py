@@ -337,6 +337,13 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         notes.append(msg)
     if tileset.blank.any():
         notes.append(f"{int(tileset.blank.sum())} blank tile(s) placed with no evidence; check them")
+    ev = search.shape_evidence
+    if ev is not None and ev["thin"]:
+        r, c = ev["runner_up"]
+        msg = (f"the {placement.shape[0]}x{placement.shape[1]} grid was inferred with a thin margin over "
+               f"{r}x{c} ({ev['margin']:.1%} more best-buddy seams); give --grid ROWSxCOLS if you know it")
+        warnings.warn(msg, UserWarning, stacklevel=2)
+        notes.append(msg)
 
     # A run that fails while writing removes what it wrote, so no output of a
     # failed run looks valid (each file is also written atomically).

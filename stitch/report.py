@@ -93,6 +93,7 @@ def summary_dict(result):
         "options": result.options.as_dict(),
         "grid": list(p.shape),
         "grid_source": "given" if result.options.grid else "inferred",
+        "grid_inference": result.search.shape_evidence,
         "seam_measure": result.measure,
         "shape_scores": result.search.shape_scores,
         "search": {"strategy": result.search.strategy, "generations": result.search.generations,

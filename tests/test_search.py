@@ -284,3 +284,54 @@ def test_swap_pass_keeps_every_tile_once_pins_in_place_and_never_raises_the_cost
     assert p.total_cost(grid) <= cost * (1 + 1e-9) + 1e-9
     if moves == 0:
         assert np.array_equal(grid.tiles, before.tiles) and np.array_equal(grid.orientations, before.orientations)
+
+
+def test_trusted_segments_agree_with_the_true_placement():
+    """Every trusted segment (closed loops of best buddies) of turned and
+    mirrored tiles is a piece of the true placement, moved as a whole. Tiles
+    from scikit-image's bundled ``coffee`` (CC0), cut in reading order, so
+    tile t's true cell is (t // 6, t % 6), upright."""
+    from stitch.orientation import turned_orientations
+    from stitch.search.assembly import trusted_segments
+
+    segments = trusted_segments(TABLE.best_buddies, TABLE.orientations)
+    assert segments and len(segments[0]) >= 12
+    for seg in segments:
+        true_r, true_c = seg.tiles // 6, seg.tiles % 6
+        matches = 0
+        for k in range(4):
+            for mirror in (False, True):
+                r, c = seg.rows.copy(), seg.cols.copy()
+                if mirror:
+                    c = -c
+                for _ in range(k):
+                    r, c = c, -r
+                rot, mir = turned_orientations(seg.orientations % 4, seg.orientations >= 4, k, mirror)
+                if len(set(zip(true_r - r, true_c - c))) == 1 and not rot.any() and not mir.any():
+                    matches += 1
+        assert matches == 1, seg
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+@pytest.mark.parametrize("image, missing", [
+    pytest.param("coffee", 3, id="coffee (CC0), 97 tiles left: a prime"),
+    pytest.param("coffee", 10, id="coffee (CC0), 90 left: was a 10x9 grid"),
+    pytest.param("astronaut", 5, id="astronaut (public domain, NASA), 95 left: was a 5x19 grid"),
+])
+def test_a_set_with_missing_tiles_keeps_its_true_grid(tmp_path, image, missing):
+    """10 x 10 tiles of 28 px from a scikit-image bundled image with some
+    removed: the grid is still 10 x 10 with holes, not another factorisation
+    of the count (the largest trusted segment rules those out)."""
+    crop = {"coffee": np.s_[:, 60:340, 150:430], "astronaut": np.s_[:, 100:380, 100:380]}[image]
+    src = write_raster(tmp_path / "src.tif", skimage_image(image)[crop])
+    cut = cut_raster(src, tmp_path / "t", 28, shuffle=True, seed=9, key_path=tmp_path / "k.csv")
+    gone = np.random.default_rng(missing).choice(100, missing, replace=False)
+    for i in gone:
+        (tmp_path / "t" / cut.key.names[i]).unlink()
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=9))
+    p = result.placement
+    assert p.shape == (10, 10) and int(p.placed.sum()) == 100 - missing
+    scores = score_placement(p, cut.key)
+    assert scores.direct == pytest.approx((100 - missing) / 100)
+    evidence = result.search.shape_evidence
+    assert evidence["trusted_segment"]["tiles"] >= 25

@@ -61,6 +61,7 @@ class Evolution:
         self.shape = choice.shape
         self.first = choice.grid
         self.shape_scores = choice.scores
+        self.shape_evidence = choice.evidence()
         self.settings = settings
         self.rng = rng
         self.progress = progress
@@ -233,7 +234,7 @@ class Evolution:
         return SearchResult(
             tiles=best[0], orientations=best[1], cost=cost, best_history=tuple(self.best_history),
             mean_history=tuple(self.mean_history), generations=self.generation, strategy="evolution",
-            shape_scores=self.shape_scores, agreement=agreement,
+            shape_scores=self.shape_scores, agreement=agreement, shape_evidence=self.shape_evidence,
         )
 
 

@@ -20,7 +20,8 @@ def greedy_result(problem, choice):
     """A :class:`SearchResult` holding the greedy placement of a :class:`ShapeChoice`."""
     grid = choice.grid
     return SearchResult(tiles=grid[0], orientations=grid[1], cost=problem.total_cost(grid), strategy="greedy",
-                        shape_scores=choice.scores, agreement=np.ones(4 * problem.n))
+                        shape_scores=choice.scores, agreement=np.ones(4 * problem.n),
+                        shape_evidence=choice.evidence())
 
 
 def greedy_search(table, *, shape=None, orientations=None, settings=None, rng=None, progress=None, pins=None,

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import OptionError
+from .assembly import Segment
 from .regrowth import regrow
 from .types import Grid
 
@@ -22,13 +23,30 @@ __all__ = ["ShapeChoice", "candidate_shapes", "choose_shape"]
 
 log = logging.getLogger(__name__)
 
-#: Smallest share of a hole-y grid's cells that tiles must fill for the grid
-#: to be inferred (a few tiles missing, not a scatter).
+#: Smallest share of its cells that tiles must fill in a grid with holes that
+#: only a free greedy placement suggests (a few tiles missing, not a scatter).
 MIN_FILL = 0.8
+
+#: Smallest share in a grid with holes that a trusted segment's box vouches
+#: for: a collar of skipped all-nodata tiles leaves up to 60 % of the cells
+#: empty.
+MIN_FILL_SEGMENT = 0.4
+
+#: A trusted segment suggests grids with holes around it only when it holds
+#: at least this share of the tiles.
+SEGMENT_SHARE = 0.25
+
+#: Most grids with holes compared besides the free greedy box (fewest empty
+#: cells first).
+MAX_HOLEY_SHAPES = 12
 
 #: How many more best-buddy seams (as a factor) a grid with holes must keep
 #: than a full one before it wins.
 HOLES_MARGIN = 1.05
+
+#: Below this margin over the runner-up the inferred grid is reported as
+#: uncertain.
+THIN_MARGIN = 0.03
 
 
 def candidate_shapes(n_tiles, *, transposes=True):
@@ -54,7 +72,7 @@ def candidate_shapes(n_tiles, *, transposes=True):
 
 @dataclass(frozen=True, eq=False)
 class ShapeChoice:
-    """The grid shape chosen, its best greedy placement and every shape's score.
+    """The grid shape chosen, its best greedy placement and the evidence.
 
     Attributes
     ----------
@@ -65,29 +83,103 @@ class ShapeChoice:
     scores : dict
         ``(rows, cols) -> {"buddy_pairs": int, "mean_normalized_cost": float}``
         for every shape tried.
+    inferred : bool
+        False when the shape was given.
+    runner_up : (int, int) or None
+        The best shape tried that is a real alternative (neither frame holds
+        the other's placement; with quarter turns either way round).
+    margin : float or None
+        How much more evidence the chosen shape has than the runner-up: the
+        relative difference of their (hole-discounted) best-buddy seams.
+    segment : Segment or None
+        The largest trusted segment (:func:`stitch.search.assembly.trusted_segments`),
+        whose box every shape tried contains.
     """
 
     shape: tuple
     grid: Grid
     scores: dict = field(default_factory=dict)
+    inferred: bool = False
+    runner_up: tuple | None = None
+    margin: float | None = None
+    segment: Segment | None = None
+
+    @property
+    def thin(self):
+        """Is the chosen shape only barely ahead of the runner-up?"""
+        return self.margin is not None and self.margin < THIN_MARGIN
+
+    def evidence(self):
+        """What the inference rests on, as plain data (None for a given grid)."""
+        if not self.inferred:
+            return None
+        seg = self.segment
+        return {
+            "search_frame": list(self.shape),
+            "runner_up": list(self.runner_up) if self.runner_up else None,
+            "margin": None if self.margin is None else round(float(self.margin), 4),
+            "thin": self.thin,
+            "trusted_segment": {"tiles": len(seg), "box": list(seg.box)} if seg is not None else None,
+            "shapes_tried": len(self.scores),
+        }
 
 
 def _free_shape(problem, seed, kfree):
     """Grid read off a greedy placement with room to grow any way (holes allowed)."""
     side = 2 * math.ceil(math.sqrt(problem.n)) + 2
-    gt, _ = problem.greedy(seed, (side, side), kfree)
-    rows = np.flatnonzero((gt >= 0).any(axis=1))
-    cols = np.flatnonzero((gt >= 0).any(axis=0))
+    return _placed_box(problem.greedy(seed, (side, side), kfree))
+
+
+def quarter_turns(problem):
+    """Does the problem allow tiles a quarter turn?"""
+    return bool(set(problem.orientations) & {1, 3, 5, 7})
+
+
+def _placed_box(grid):
+    """Rows and columns a placement's tiles span."""
+    rows = np.flatnonzero((grid[0] >= 0).any(axis=1))
+    cols = np.flatnonzero((grid[0] >= 0).any(axis=0))
     return int(rows[-1] - rows[0] + 1), int(cols[-1] - cols[0] + 1)
 
 
-def shapes_to_try(problem, shape, seed, kfree, holes):
-    """The grid shapes a search compares: the one given (and, with quarter
-    turns, its transpose: the seed tile may sit turned), or every shape that
-    holds the tiles, plus the free greedy box when ``holes`` allows it.
-    Shapes the pins do not fit are left out."""
+def largest_segment(problem):
+    """The largest trusted segment of a problem's seam table, or None."""
+    from .assembly import loop_seams, trusted_segments
+
+    seams = loop_seams(problem.lookup.best_buddies, problem.orientations)
+    if len(seams) == 0:
+        return None
+    conf = problem.table.confidence(seams[:, 0], seams[:, 1], seams[:, 2])
+    segments = trusted_segments(problem.lookup.best_buddies, problem.orientations, conf)
+    return segments[0] if segments else None
+
+
+def _holey_shapes(n, box, contains, bound):
+    """Grids with more cells than tiles, at most ``bound`` cells, that contain
+    ``box``: fewest empty cells first, then the least elongated."""
+    out = []
+    for r in range(2, int(bound) + 1):
+        for c in range(max(2, -(-(n + 1) // r)), int(bound // r) + 1):
+            if contains((r, c)):
+                out.append((r, c))
+    out.sort(key=lambda s: (s[0] * s[1], max(s) / min(s), s))
+    return out[:MAX_HOLEY_SHAPES]
+
+
+def shapes_to_try(problem, shape, seed, kfree, holes, segment=None):
+    """The grid shapes a search compares.
+
+    The one given (and, with quarter turns, its transpose: the seed tile may
+    sit turned); or every shape that holds the tiles and contains the box of
+    the largest trusted ``segment`` (a grid that cannot hold it is wrong).
+    With ``holes``, also grids with empty cells: the box a free greedy
+    placement fills (while tiles fill :data:`MIN_FILL` of it) and, when the
+    segment holds :data:`SEGMENT_SHARE` of the tiles, the smallest grids
+    around it (down to :data:`MIN_FILL_SEGMENT` full when its own box has
+    that many empty cells). Shapes the pins do not fit are left out.
+    """
     n = problem.n
-    quarter = bool(set(problem.orientations) & {1, 3, 5, 7})
+    quarter = quarter_turns(problem)
     if shape is not None:
         rows, cols = shape
         if rows * cols < n:
@@ -96,14 +188,25 @@ def shapes_to_try(problem, shape, seed, kfree, holes):
         if quarter and rows != cols and not problem.pins.absolute:
             shapes.append((cols, rows))  # the seed may sit turned; turned back later
     else:
-        shapes = candidate_shapes(n, transposes=True)
+        box = segment.box if segment is not None else (1, 1)
+
+        def contains(s):
+            return (s[0] >= box[0] and s[1] >= box[1]) or (quarter and s[0] >= box[1] and s[1] >= box[0])
+
+        shapes = [s for s in candidate_shapes(n, transposes=True) if contains(s)]
         if holes:
             # A free run can wander off and leave a box far larger than the
-            # set: a grid with holes is only a candidate while at least
-            # MIN_FILL of its cells hold a tile (sparser sets need --grid).
+            # set: it is only a candidate while at least MIN_FILL of its
+            # cells hold a tile (sparser sets need --grid or a segment).
             free = _free_shape(problem, seed, kfree)
-            if n <= free[0] * free[1] <= n / MIN_FILL and free not in shapes:
+            if n <= free[0] * free[1] <= n / MIN_FILL and free not in shapes and contains(free):
                 shapes.append(free)
+            if segment is not None and len(segment) >= SEGMENT_SHARE * n:
+                area = box[0] * box[1]
+                bound = max(n / MIN_FILL, area) if n >= MIN_FILL_SEGMENT * area else n / MIN_FILL
+                shapes += [s for s in _holey_shapes(n, box, contains, bound) if s not in shapes]
+        if not shapes:  # nothing holds the segment: do not let it rule out every grid
+            shapes = candidate_shapes(n, transposes=True)
     fitting = [s for s in shapes if problem.pins.fits(s)]
     if not fitting:
         r, c = problem.pins.span()
@@ -116,13 +219,15 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
                  progress=None):
     """Grow a greedy placement on each shape to try and keep the best.
 
-    A wrong shape forces seams the tiles do not want: the right one keeps the
-    most best-buddy pairs; among equals, the one with fewer cells, then the
-    cheapest seams. Empty cells let a free greedy run dodge seams a full
-    frame forces, so with ``regrow_contenders`` the close contenders (within
-    nine tenths of the most best-buddy seams) are first mended by segment
-    regrowth, and a grid with holes must keep :data:`HOLES_MARGIN` times the
-    best-buddy seams of a full one before it wins.
+    Shapes that cannot hold the largest trusted segment are not tried (see
+    :func:`shapes_to_try`). Of the rest, a wrong shape forces seams the tiles
+    do not want: the right one keeps the most best-buddy pairs; among equals,
+    the one with fewer cells, then the least elongated, then the cheapest
+    seams. Empty cells let a free greedy run dodge seams a full frame forces,
+    so with ``regrow_contenders`` the close contenders (within nine tenths of
+    the most best-buddy seams) are first mended by segment regrowth, and a
+    grid with holes must keep :data:`HOLES_MARGIN` times the best-buddy seams
+    of a full one before it wins.
 
     Parameters
     ----------
@@ -133,7 +238,7 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
     shape : (int, int), optional
         The grid given by the user; inferred when None.
     holes : bool
-        Also consider the box of a free greedy placement (tiles missing).
+        Also consider grids with empty cells (tiles missing).
     regrow_contenders : bool
     deadline : float, optional
     progress : callable, optional
@@ -143,7 +248,8 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
     ShapeChoice
     """
     n = problem.n
-    shapes = shapes_to_try(problem, shape, seed, settings.candidates_free, holes)
+    segment = largest_segment(problem) if shape is None else None
+    shapes = shapes_to_try(problem, shape, seed, settings.candidates_free, holes, segment)
 
     def tick():
         if progress is not None:
@@ -163,13 +269,33 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
             if buddies[s] >= 0.9 * top:
                 grids[s], _ = regrow(problem, grids[s], settings, deadline, rounds=3, tick=tick)
                 buddies[s] = problem.buddy_seams(grids[s])
-    scores = {}
-    best, best_key = None, None
+    scores, keys = {}, {}
     for s, grid in grids.items():
         b = buddies[s]
-        key = (-(b if s[0] * s[1] == n else b / HOLES_MARGIN), s[0] * s[1], problem.normalized_cost(grid))
-        scores[s] = {"buddy_pairs": b, "mean_normalized_cost": key[2]}
-        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], b, key[2])
-        if best_key is None or key < best_key:
-            best, best_key = s, key
-    return ShapeChoice(best, grids[best], scores)
+        keys[s] = (-(b if s[0] * s[1] == n else b / HOLES_MARGIN), s[0] * s[1], max(s) / min(s),
+                   problem.normalized_cost(grid))
+        scores[s] = {"buddy_pairs": b, "mean_normalized_cost": keys[s][3]}
+        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], b, keys[s][3])
+    ranked = sorted(keys, key=keys.get)
+    best = ranked[0]
+    # The runner-up is the best shape that is a real alternative: a frame
+    # that holds the chosen placement (empty rows or columns around it), or
+    # whose placement the chosen frame holds, or with quarter turns the same
+    # grid turned, would end as the same mosaic.
+    quarter = quarter_turns(problem)
+
+    def holds(frame, box):
+        return (box[0] <= frame[0] and box[1] <= frame[1]) or (quarter and box[1] <= frame[0] and box[0] <= frame[1])
+
+    boxes = {s: _placed_box(grids[s]) for s in ranked}
+    others = [s for s in ranked[1:] if not (holds(best, boxes[s]) or holds(s, boxes[best]))]
+    runner_up = others[0] if others else None
+    margin = None
+    if runner_up is not None:
+        top, second = -keys[best][0], -keys[runner_up][0]
+        margin = (top - second) / top if top > 0 else 0.0
+    if shape is None:
+        log.info("grid %dx%d inferred from %d shapes%s", best[0], best[1], len(shapes),
+                 f" (runner-up {runner_up[0]}x{runner_up[1]}, margin {margin:.1%})" if runner_up else "")
+    return ShapeChoice(best, grids[best], scores, inferred=shape is None, runner_up=runner_up, margin=margin,
+                       segment=segment)

@@ -196,6 +196,10 @@ class SearchResult:
     agreement : ndarray, shape (4 * n_tiles,)
         Share of the final elite holding the best placement's seam on each
         side slot (1 for greedy); feeds tile confidence.
+    shape_evidence : dict or None
+        For an inferred grid, what the inference rests on
+        (:meth:`stitch.search.shapes.ShapeChoice.evidence`): runner-up shape,
+        margin, whether it is thin, the largest trusted segment.
     """
 
     tiles: np.ndarray
@@ -207,6 +211,7 @@ class SearchResult:
     strategy: str = "greedy"
     shape_scores: dict = field(default_factory=dict)
     agreement: np.ndarray | None = None
+    shape_evidence: dict | None = None
 
     @property
     def shape(self):
