@@ -61,9 +61,9 @@ def _time_kernels(side, repeats, quarter=False):
     timed("crossover", lambda: p.crossover(parts, parts, 1, 0, shape, 0.005, 1))
     timed("swap pass", lambda: p.swap_pass(grid.copy(), 1))
     # 2 x 3 windows with no best buddies, so no window is skipped as settled.
-    unsettled = p.lookup._replace(best_buddies=np.full_like(p.lookup.best_buddies, -1))
+    no_buddies = np.full_like(p.ranking.best_buddies, -1)
     timed("window pass", lambda: _polish.permute_windows(grid.tiles.copy(), grid.orientations.copy(), 2, 3, PERMS6,
-                                                         unsettled, p.fixed))
+                                                         p.lookup, p.fixed, no_buddies))
     return timings
 
 

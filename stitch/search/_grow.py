@@ -95,7 +95,7 @@ def _step(cell, d, cw, ch):
 
 
 @njit(cache=True, nogil=True)
-def _score_at(ct, co, cw, ch, cell, y, oy, lookup):
+def _score_at(ct, co, cw, ch, cell, y, oy, lookup, ranking):
     """Greedy score of tile y (oy) at a free cell: mean confidence of its seams,
     plus 2 when it is the best buddy of every placed neighbour."""
     total = 0.0
@@ -110,11 +110,11 @@ def _score_at(ct, co, cw, ch, cell, y, oy, lookup):
         dx = (d + 2) % 4
         cost = seam_cost(lookup, x, ox, dx, y, oy)
         kx = 4 * x + FACE[ox, dx]
-        sec = lookup.second[kx]
+        sec = ranking.second[kx]
         total += (1.0 - cost / sec) if sec > 0 else (0.0 if cost == 0 else -1.0)
         count += 1
         flip = 1 if (ox >= 4) != (oy >= 4) else 0
-        if lookup.best_buddies[kx] != 2 * (4 * y + FACE[oy, d]) + flip:
+        if ranking.best_buddies[kx] != 2 * (4 * y + FACE[oy, d]) + flip:
             all_bb = False
     if count == 0:
         return -np.inf
@@ -125,7 +125,7 @@ def _score_at(ct, co, cw, ch, cell, y, oy, lookup):
 
 
 @njit(cache=True, nogil=True)
-def _best_for_cell(ct, co, cw, ch, cell, used, lookup, allowed, kfree):
+def _best_for_cell(ct, co, cw, ch, cell, used, lookup, ranking, allowed, kfree):
     n = used.shape[0]
     cand = lookup.candidates
     best_s = -np.inf
@@ -153,7 +153,7 @@ def _best_for_cell(ct, co, cw, ch, cell, used, lookup, allowed, kfree):
             if not allowed[oy]:
                 continue
             seen_any = True
-            s = _score_at(ct, co, cw, ch, cell, y, oy, lookup)
+            s = _score_at(ct, co, cw, ch, cell, y, oy, lookup, ranking)
             if s > best_s:
                 best_s = s
                 best_y = y
@@ -169,7 +169,7 @@ def _best_for_cell(ct, co, cw, ch, cell, used, lookup, allowed, kfree):
             for oy in range(8):
                 if not allowed[oy]:
                     continue
-                s = _score_at(ct, co, cw, ch, cell, y, oy, lookup)
+                s = _score_at(ct, co, cw, ch, cell, y, oy, lookup, ranking)
                 if s > best_s or best_y < 0:
                     best_s = s
                     best_y = y
@@ -178,7 +178,7 @@ def _best_for_cell(ct, co, cw, ch, cell, used, lookup, allowed, kfree):
 
 
 @njit(cache=True, nogil=True)
-def greedy(seed_tile, seed_o, nrows, ncols, lookup, allowed, kfree, pins):
+def greedy(seed_tile, seed_o, nrows, ncols, lookup, ranking, allowed, kfree, pins):
     """Greedy best-buddy placement (after Paikin & Tal, CVPR 2015).
 
     Repeatedly fills the free cell, next to placed tiles, whose best tile
@@ -186,7 +186,7 @@ def greedy(seed_tile, seed_o, nrows, ncols, lookup, allowed, kfree, pins):
     mean normalised seam confidence. Starts from the pinned tiles, or from the
     seed. Returns ``(tiles, orientations)`` grids.
     """
-    n = lookup.second.shape[0] // 4
+    n = ranking.second.shape[0] // 4
     ch = 2 * nrows + 1
     cw = 2 * ncols + 1
     ct = np.full(ch * cw, -1, np.int64)
@@ -231,7 +231,7 @@ def greedy(seed_tile, seed_o, nrows, ncols, lookup, allowed, kfree, pins):
                 nfr -= 1
                 continue
             if not c_ok[f] or (c_t[f] >= 0 and used[c_t[f]]):
-                y, o, sc = _best_for_cell(ct, co, cw, ch, f, used, lookup, allowed, kfree)
+                y, o, sc = _best_for_cell(ct, co, cw, ch, f, used, lookup, ranking, allowed, kfree)
                 c_t[f] = y
                 c_o[f] = o
                 c_s[f] = sc
@@ -277,7 +277,7 @@ def _push(ct, co, cw, ch, cell, pa, pb, bb, s1, n1, s2, n2, s3, n3):
 
 
 @njit(cache=True, nogil=True)
-def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, lookup, allowed, mutation, rseed, pins):
+def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, lookup, ranking, allowed, mutation, rseed, pins):
     """Grow a child from two parents (Sholomon, David & Netanyahu, CVPR 2013).
 
     From a seed tile the child grows one seam at a time: first seams both
@@ -299,9 +299,9 @@ def crossover(pa, pb, seed_tile, seed_o, nrows, ncols, lookup, allowed, mutation
     placement that respects the pins and the grid size.
     """
     np.random.seed(rseed)
-    n = lookup.second.shape[0] // 4
+    n = ranking.second.shape[0] // 4
     cand = lookup.candidates
-    bb = lookup.best_buddies
+    bb = ranking.best_buddies
     ch = 2 * nrows + 1
     cw = 2 * ncols + 1
     ct = np.full(ch * cw, -1, np.int64)

@@ -14,12 +14,17 @@ from numba import njit
 
 from ..orientation import FACE, STEPS, TURN_TO_FACE
 
-__all__ = ["DCOL", "DROW", "SeamLookup", "facing_back", "fitness", "partners", "seam_cost"]
+__all__ = ["DCOL", "DROW", "SeamLookup", "SideRanking", "facing_back", "fitness", "partners", "seam_cost"]
 
 #: Row and column steps for directions 0 up, 1 right, 2 down, 3 left.
 DROW = np.array([s[0] for s in STEPS], dtype=np.int64)
 DCOL = np.array([s[1] for s in STEPS], dtype=np.int64)
 
+# Numba passes a named tuple of arrays as all their fields (pointers, shapes,
+# strides) on every call that is not inlined, and seam_cost is called in the
+# innermost loops: the per-slot ranking travels in a tuple of its own, only
+# to the kernels that read it (two more arrays in SeamLookup made the swap
+# pass about a fifth slower).
 SeamLookup = namedtuple("SeamLookup", [
     "blocks",           # (n_blocks, n, n) float32 dense costs, or (1, 1, 1) when not dense
     "block_index",      # (4, 4, 2) int64: block of (side_a, side_b, flip), -1 where they never meet
@@ -27,11 +32,15 @@ SeamLookup = namedtuple("SeamLookup", [
     "candidates",       # (4 n, k) int64 partner codes per side slot, best first, -1 pads
     "candidate_costs",  # (4 n, k) float32
     "fallback",         # (4 n,) float32: cost of a pair neither side lists
-    "second",           # (4 n,) float64: second-best cost per side slot
-    "best_buddies",     # (4 n,) int64: partner code of the mutual best match, or -1
     "dense",            # bool: blocks hold every cost
 ])
-SeamLookup.__doc__ = """Arrays of a :class:`stitch.seams.SeamTable` laid out for the kernels."""
+SeamLookup.__doc__ = """Seam costs of a :class:`stitch.seams.SeamTable` laid out for the kernels."""
+
+SideRanking = namedtuple("SideRanking", [
+    "second",           # (4 n,) float64: second-best cost per side slot
+    "best_buddies",     # (4 n,) int64: partner code of the mutual best match, or -1
+])
+SideRanking.__doc__ = """Per side slot: second-best cost and best buddy, for the kernels."""
 
 
 @njit(cache=True, nogil=True)

@@ -52,7 +52,7 @@ def improve(gt, go, lookup, allowed, fixed, max_passes, per_side):
     move. Works in place; returns the number of accepted moves.
     """
     nrows, ncols = gt.shape
-    n = lookup.second.shape[0] // 4
+    n = lookup.fallback.shape[0] // 4
     cand = lookup.candidates
     pos = np.full(n, -1, np.int64)
     for i in range(nrows):
@@ -231,7 +231,7 @@ def _arrangement_cost(p, perms, h, w, edge, right, below):
 
 
 @njit(cache=True, nogil=True)
-def permute_windows(gt, go, h, w, perms, lookup, fixed):
+def permute_windows(gt, go, h, w, perms, lookup, fixed, best_buddies):
     """Try every arrangement of the tiles inside each ``h x w`` window.
 
     Fixes small scrambled blocks that no single swap improves (each swap on
@@ -259,7 +259,7 @@ def permute_windows(gt, go, h, w, perms, lookup, fixed):
                 cells_o[q] = go[r0 + q // w, c0 + q % w]
                 if x >= 0 and fixed[x]:
                     skip = True
-            if skip or _window_settled(gt, go, r0, c0, h, w, lookup.best_buddies):
+            if skip or _window_settled(gt, go, r0, c0, h, w, best_buddies):
                 continue
             _window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, lookup, edge, right, below)
             best = _arrangement_cost(0, perms, h, w, edge, right, below)

@@ -9,7 +9,7 @@ import numpy as np
 
 from ..orientation import FACE
 from . import _grow, _lookup, _polish
-from ._lookup import SeamLookup
+from ._lookup import SeamLookup, SideRanking
 from .types import Grid, Pins, canvas_layout
 
 __all__ = ["Problem", "grid_seams"]
@@ -29,10 +29,14 @@ def seam_lookup(table):
         candidates=np.ascontiguousarray(table.candidates, dtype=np.int64),
         candidate_costs=np.ascontiguousarray(table.candidate_costs, dtype=np.float32),
         fallback=np.ascontiguousarray(table.fallback, dtype=np.float32),
-        second=np.ascontiguousarray(table.second, dtype=np.float64),
-        best_buddies=np.ascontiguousarray(table.best_buddies, dtype=np.int64),
         dense=bool(table.dense),
     )
+
+
+def side_ranking(table):
+    """A :class:`~stitch.search._lookup.SideRanking` of a seam table."""
+    return SideRanking(second=np.ascontiguousarray(table.second, dtype=np.float64),
+                       best_buddies=np.ascontiguousarray(table.best_buddies, dtype=np.int64))
 
 
 def grid_seams(grid):
@@ -64,6 +68,7 @@ class Problem:
         self.n = table.n_tiles
         self.table = table
         self.lookup = seam_lookup(table)
+        self.ranking = side_ranking(table)
         self.allowed = np.zeros(8, np.bool_)
         self.allowed[list(orientations)] = True
         self.orientations = tuple(orientations)
@@ -80,13 +85,13 @@ class Problem:
 
     def greedy(self, seed, shape, kfree):
         """Greedy placement on a ``shape`` grid grown from tile ``seed`` (or the pins)."""
-        return Grid(*_grow.greedy(seed, 0, shape[0], shape[1], self.lookup, self.allowed, kfree,
+        return Grid(*_grow.greedy(seed, 0, shape[0], shape[1], self.lookup, self.ranking, self.allowed, kfree,
                                   self.pins.on_canvas(shape)))
 
     def crossover(self, pa, pb, seed, seed_o, shape, mutation, rseed):
         """A child of two parents given by their partner codes (:meth:`partners`)."""
-        return Grid(*_grow.crossover(pa, pb, seed, seed_o, shape[0], shape[1], self.lookup, self.allowed,
-                                     mutation, rseed, self.pins.on_canvas(shape)))
+        return Grid(*_grow.crossover(pa, pb, seed, seed_o, shape[0], shape[1], self.lookup, self.ranking,
+                                     self.allowed, mutation, rseed, self.pins.on_canvas(shape)))
 
     def random(self, shape, rng):
         """A random placement respecting pins and grid size (crossover of nothing)."""
@@ -106,7 +111,7 @@ class Problem:
         r, c = np.divmod(np.flatnonzero(keep), cols)
         layout = canvas_layout(gt.ravel()[keep], r, c, go.ravel()[keep], (rows, cols),
                                absolute=self.pins.absolute, origin=(r.min(), c.min()))
-        return Grid(*_grow.greedy(0, 0, rows, cols, self.lookup, self.allowed, kfree, layout))
+        return Grid(*_grow.greedy(0, 0, rows, cols, self.lookup, self.ranking, self.allowed, kfree, layout))
 
     # -- local search ------------------------------------------------------
 
@@ -123,7 +128,8 @@ class Problem:
         changed = 0
         for h, w in ((2, 3), (3, 2)):
             if gt.shape[0] >= h and gt.shape[1] >= w:
-                changed += _polish.permute_windows(gt, go, h, w, PERMS6, self.lookup, self.fixed)
+                changed += _polish.permute_windows(gt, go, h, w, PERMS6, self.lookup, self.fixed,
+                                                   self.ranking.best_buddies)
         return changed
 
     def polish(self, grid, passes, windows=0):
@@ -146,7 +152,7 @@ class Problem:
     def buddy_seams(self, grid):
         """Number of best-buddy pairs a grid realises."""
         p = self.partners(grid)
-        return int(np.sum((p >= 0) & (p == self.lookup.best_buddies)))
+        return int(np.sum((p >= 0) & (p == self.ranking.best_buddies)))
 
     def costs(self, grid):
         """Search objective and plain total seam cost (see :func:`stitch.search._lookup.fitness`)."""
@@ -168,7 +174,7 @@ class Problem:
     def normalized_cost(self, grid):
         """Mean of cost / second-best over the seams (comparable across shapes)."""
         total, count = 0.0, 0
-        second = self.lookup.second
+        second = self.ranking.second
         for ok, sa, sb, flip in grid_seams(grid):
             if not ok.any():
                 continue
@@ -182,7 +188,7 @@ class Problem:
     def seed_ranking(self):
         """Tiles ordered by how distinctive they are: best-buddy sides, then margin."""
         n = self.n
-        has_bb = (self.lookup.best_buddies >= 0).reshape(n, 4).sum(axis=1)
+        has_bb = (self.ranking.best_buddies >= 0).reshape(n, 4).sum(axis=1)
         best = self.table.candidate_costs[:, 0].reshape(n, 4)
         sec = self.table.second.reshape(n, 4)
         with np.errstate(divide="ignore", invalid="ignore"):

@@ -35,7 +35,7 @@ def segments(problem, grid, loops=True):
 
     gt = grid[0]
     rows, cols = gt.shape
-    bb = problem.lookup.best_buddies
+    bb = problem.ranking.best_buddies
     # h: (rows, cols-1) seams to the right; v: (rows-1, cols) seams below
     h, v = (ok & (bb[sa] == 2 * sb + flip) for ok, sa, sb, flip in grid_seams(grid))
     if loops:

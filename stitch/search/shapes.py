@@ -146,11 +146,11 @@ def largest_segment(problem):
     """The largest trusted segment of a problem's seam table, or None."""
     from .assembly import loop_seams, trusted_segments
 
-    seams = loop_seams(problem.lookup.best_buddies, problem.orientations)
+    seams = loop_seams(problem.ranking.best_buddies, problem.orientations)
     if len(seams) == 0:
         return None
     conf = problem.table.confidence(seams[:, 0], seams[:, 1], seams[:, 2])
-    segments = trusted_segments(problem.lookup.best_buddies, problem.orientations, conf)
+    segments = trusted_segments(problem.ranking.best_buddies, problem.orientations, conf)
     return segments[0] if segments else None
 
 
