@@ -289,6 +289,7 @@ def cut(
     mirror: Annotated[bool, typer.Option("--mirror", help="Store tiles mirrored at random.")] = False,
     tile_format: Annotated[str, typer.Option("--format", help="Tile format: tif or png.")] = "tif",
     key: Annotated[Optional[Path], typer.Option(help="Answer key CSV (default: OUTPUT/answer_key.csv).")] = None,
+    skip_empty: Annotated[bool, typer.Option("--skip-empty", help="Do not write tiles that hold only nodata, as tilers skip them.")] = False,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,
@@ -302,10 +303,12 @@ def cut(
     with _errors(verbose, quiet):
         result = cut_raster(raster, output, parse_tile_size(tile_size), shuffle=shuffle, strip_georef=strip_georef,
                             keep_georef=keep_georef, rotate=rotate, mirror=mirror, fmt=tile_format, key_path=key,
-                            seed=seed, overwrite=overwrite)
+                            seed=seed, overwrite=overwrite, skip_empty=skip_empty)
     if not quiet:
         k = result.key
-        typer.echo(f"wrote {len(k.names)} tiles ({k.shape[0]}x{k.shape[1]}) to {result.folder}")
+        skipped = k.shape[0] * k.shape[1] - len(k.names)
+        typer.echo(f"wrote {len(k.names)} tiles ({k.shape[0]}x{k.shape[1]}"
+                   + (f", {skipped} holding only nodata skipped" if skipped else "") + f") to {result.folder}")
         if result.georeferenced and strip_georef:
             typer.echo(f"kept georeferencing on {', '.join(result.georeferenced)}")
         typer.echo(f"wrote answer key {result.key_path}")

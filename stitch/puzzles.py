@@ -36,7 +36,7 @@ from .georef import world_file_path, world_file_text
 from .layout import Placement, seam_pairs, write_placement_csv
 from .orientation import TURN_MODES, unorient
 
-__all__ = ["CutResult", "Scores", "cut_raster", "parse_tile_size", "score_placement"]
+__all__ = ["CutResult", "Scores", "cut_raster", "flight_block_mask", "parse_tile_size", "score_placement"]
 
 log = logging.getLogger(__name__)
 
@@ -102,7 +102,7 @@ def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
 
 
 def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False, keep_georef=0,
-               rotate=0, mirror=False, fmt="tif", key_path=None, seed=0, overwrite=False):
+               rotate=0, mirror=False, fmt="tif", key_path=None, seed=0, overwrite=False, skip_empty=False):
     """Cut a raster into whole tiles and write them with an answer key.
 
     Parameters
@@ -126,6 +126,9 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         Answer key CSV; default ``out_dir/answer_key.csv``.
     seed : int
     overwrite : bool
+    skip_empty : bool
+        Do not write tiles that hold only nodata (as tilers skip them); the
+        answer key then lists only the tiles written, on the full grid.
 
     Returns
     -------
@@ -155,10 +158,17 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         if src.height % th or src.width % tw:
             log.info("dropping the last %d rows and %d columns that do not fill a tile", src.height % th, src.width % tw)
         n = rows * cols
+        windows = [Window((k % cols) * tw, (k // cols) * th, tw, th) for k in range(n)]
+        # GDAL's dataset mask: 0 where a pixel is nodata in every band.
+        empty = (np.array([not src.dataset_mask(window=w).any() for w in windows], bool) if skip_empty
+                 else np.zeros(n, bool))
+        if empty.all():
+            raise OptionError(f"every {tw}x{th} tile of {str(raster)!r} holds only nodata; nothing to cut")
         georeferenced = not (src.transform.is_identity and src.crs is None)
         keep = np.ones(n, bool) if not strip_georef else np.zeros(n, bool)
         if strip_georef and keep_georef:
-            keep[rng.choice(n, size=min(keep_georef, n), replace=False)] = True
+            pool = np.flatnonzero(~empty) if skip_empty else n
+            keep[rng.choice(pool, size=min(keep_georef, int((~empty).sum())), replace=False)] = True
         keep &= georeferenced
         turns = np.asarray(TURN_MODES[rotate])
         rot = np.where(keep, 0, rng.choice(turns, size=n))
@@ -168,11 +178,13 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         names = [f"tile_{order[k]:0{width}d}{ext}" if shuffle else f"r{k // cols:03d}_c{k % cols:03d}{ext}"
                  for k in range(n)]
         out_dir.mkdir(parents=True, exist_ok=True)
-        check_outputs([out_dir / nm for nm in names] + [key_path], overwrite=overwrite)
+        written = np.flatnonzero(~empty)
+        check_outputs([out_dir / names[k] for k in written] + [key_path], overwrite=overwrite)
         profile = {"count": src.count, "dtype": src.dtypes[0], "nodata": src.nodata}
-        for k in range(n):
-            r, c = divmod(k, cols)
-            window = Window(c * tw, r * th, tw, th)
+        if skip_empty:
+            log.info("skipped %d of %d tiles that hold only nodata", int(empty.sum()), n)
+        for k in written:
+            window = windows[k]
             upright = src.read(window=window)
             # The key says: mirror (if set) then turn clockwise by rot to get
             # upright, so the file holds the inverse.
@@ -180,9 +192,36 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
             transform = src.window_transform(window) if keep[k] else None
             _write_tile(out_dir / names[k], np.ascontiguousarray(stored), profile, transform,
                         src.crs if keep[k] else None, driver, overwrite=overwrite)
-    key = Placement(tuple(names), (rows, cols), np.arange(n) // cols, np.arange(n) % cols, rot, mir, np.ones(n))
+    w = written
+    key = Placement(tuple(names[k] for k in w), (rows, cols), w // cols, w % cols, rot[w], mir[w], np.ones(len(w)))
     write_placement_csv(key, key_path, overwrite=overwrite)
-    return CutResult(key, out_dir, key_path, tuple(nm for nm, k in zip(names, keep) if k))
+    return CutResult(key, out_dir, key_path, tuple(names[k] for k in w if keep[k]))
+
+
+def flight_block_mask(shape, *, angle=25.0, cover=0.5):
+    """Where a turned rectangle lies in a raster: the footprint of a drone
+    flight block, as a boolean ``(rows, cols)`` mask.
+
+    A rectangle turned by ``angle`` degrees around the raster's centre, sized
+    so that it covers about ``cover`` of the raster (its sides in the
+    raster's proportions, the long side stretched by a quarter); outside it
+    an orthomosaic holds nodata. For building export-like test folders with
+    :func:`cut_raster` and ``skip_empty``.
+
+    Examples
+    --------
+    >>> m = flight_block_mask((100, 100), angle=0, cover=0.5)
+    >>> round(float(m.mean()), 1)
+    0.5
+    """
+    h, w = shape
+    yy, xx = np.mgrid[0:h, 0:w]
+    cy, cx = (h - 1) / 2, (w - 1) / 2
+    t = np.deg2rad(angle)
+    u = (xx - cx) * np.cos(t) + (yy - cy) * np.sin(t)
+    v = -(xx - cx) * np.sin(t) + (yy - cy) * np.cos(t)
+    half_u, half_v = 0.5 * w * np.sqrt(cover) * 1.25, 0.5 * h * np.sqrt(cover) * 0.8
+    return (np.abs(u) <= half_u) & (np.abs(v) <= half_v)
 
 
 def score_placement(solution, key, *, frame="auto"):

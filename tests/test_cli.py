@@ -132,3 +132,20 @@ def test_version_and_module_entry_point():
     r = subprocess.run([sys.executable, "-m", "stitch", "--version"], capture_output=True, text=True, check=True)
     assert r.stdout.startswith("stitch ")
     assert run("-h").exit_code == 0
+
+
+def test_cut_skip_empty_says_how_many_tiles_it_left_out(tmp_path):
+    """A raster whose left third is nodata (value 0), cut into 28 px tiles:
+    --skip-empty writes only tiles with valid data and says so; the solve
+    of that folder prints how the grid was inferred. Pixels from
+    scikit-image's ``coffee`` (CC0)."""
+    img = np.maximum(skimage_image("coffee")[:, :168, :252], 1)
+    img[:, :, :84] = 0
+    src = write_raster(tmp_path / "src.tif", img, nodata=0)
+    r = run("cut", src, "-o", tmp_path / "t", "--tile-size", 28, "--shuffle", "--skip-empty")
+    assert r.exit_code == 0, r.output
+    assert "wrote 36 tiles (6x9, 18 holding only nodata skipped)" in r.output
+    assert len(list((tmp_path / "t").glob("tile_*.tif"))) == 36
+    r = run("solve", tmp_path / "t", "-o", tmp_path / "m.tif")
+    assert r.exit_code == 0, r.output
+    assert "grid inferred (" in r.output
