@@ -36,6 +36,7 @@ __all__ = [
     "band_scaling",
     "best_buddy_share",
     "count_blocks",
+    "footprint_mismatch",
     "keeps_dense",
     "measure_names",
     "normalize_strips",
@@ -199,6 +200,56 @@ def _count_bad(block):
     return total
 
 
+#: A side takes no best buddy when fewer than this share of its rows are
+#: valid (our choice, no source).
+MIN_VALID_SHARE = 0.25
+
+#: How much a seam costs, in units of a good seam's cost (the median over the
+#: block's rows of their cheapest entry), when the valid-data footprints of
+#: its two sides disagree along their whole length (a side with valid pixels
+#: against one that is all nodata); partial disagreement costs its share.
+#: Our choice (no source): large enough that a nodata collar's edge must
+#: continue across a seam.
+FOOTPRINT_WEIGHT = 20.0
+
+#: Rows of footprint disagreement a true seam may show: a nodata edge that
+#: crosses the seam at a slant moves by up to about a row between the two
+#: boundary columns, plus one for the pixel grid (common practice, no source).
+FOOTPRINT_SLACK = 2
+
+
+def footprint_mismatch(left_valid, right_valid, *, flip=False, slack=0):
+    """Share of a seam's rows where one side's boundary pixel is valid data
+    and the other's is nodata, beyond ``slack`` rows, for every pair of
+    sides (one matrix product).
+
+    Parameters
+    ----------
+    left_valid, right_valid : ndarray of bool, shape (n, length), (m, length)
+        Validity of the boundary pixels (strip column 1).
+    flip : bool
+        As in :func:`seam_block`: without it the right sides are read in reverse.
+
+    Returns
+    -------
+    ndarray, shape (n, m), float32, in [0, 1]
+
+    Examples
+    --------
+    >>> a = np.array([[True, True, False, False]])
+    >>> float(footprint_mismatch(a, a, flip=True)[0, 0]), float(footprint_mismatch(a, ~a, flip=True)[0, 0])
+    (0.0, 1.0)
+    """
+    a = np.asarray(left_valid, np.float32)
+    b = np.asarray(right_valid, np.float32)
+    if not flip:
+        b = b[:, ::-1]
+    length = max(a.shape[1], 1)
+    mismatch = a.sum(axis=1)[:, None] + b.sum(axis=1)[None, :] - 2.0 * (a @ np.ascontiguousarray(b).T)
+    excess = np.maximum(np.rint(mismatch) - slack, 0.0)
+    return np.clip(excess / length, 0.0, 1.0).astype(np.float32)
+
+
 def _neutralize(block, dead_rows, dead_cols):
     """Replace NaN, negative and dead entries by the block's median (neutral)."""
     if not dead_rows.any() and not dead_cols.any() and _count_bad(block) == 0:
@@ -339,6 +390,9 @@ class SeamTable:
     dead : ndarray, shape (4 * n_tiles,), bool
         Slots scored neutrally (blank tile, or no valid pixel on that side).
     measure : str
+    coverage : ndarray, shape (4 * n_tiles,), float32
+        Share of each side's boundary pixels that hold valid data (1 without
+        nodata); below 1 somewhere, the set has a nodata collar.
     """
 
     n_tiles: int
@@ -354,6 +408,12 @@ class SeamTable:
     best_buddies: np.ndarray
     dead: np.ndarray
     measure: str
+    coverage: np.ndarray | None = None
+
+    @property
+    def has_collar(self):
+        """Do some sides hold nodata (a collar, as skipped empty tiles leave)?"""
+        return self.coverage is not None and bool((self.coverage < 1).any())
 
     def cost(self, slot_a, slot_b, flip=0):
         """Cost of joining two side slots (vectorised over arrays).
@@ -478,9 +538,14 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     sides = normalize_strips(edges.sides, edges.valid)
     rows_ok = [_row_valid(v) for v in edges.valid]
     masked = not all(r.all() for r in rows_ok)
+    boundary_ok = [v[..., 1] for v in edges.valid]  # validity of each side's boundary pixels
     n = sides[0].shape[0]
     blank = np.zeros(n, bool) if blank is None else np.asarray(blank, bool)
     dead = np.stack([blank | (r.sum(axis=1) < 2) for r in rows_ok], axis=1)  # (n, 4)
+    # A side with few valid rows (mostly nodata) is scored, but too little to
+    # go on for a best buddy: a few pixels left by a tilted nodata edge rank
+    # impostors first.
+    weak = dead | np.stack([r.sum(axis=1) < MIN_VALID_SHARE * r.shape[1] for r in rows_ok], axis=1)
 
     block_index = np.full((4, 4, 2), -1, np.int64)
     transposed = np.zeros((4, 4, 2), bool)
@@ -513,6 +578,16 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
                 blk = _rows_in_parallel(fn, sides[a][r0:r1], sides[b], None if rv_a is None else rv_a[r0:r1], rv_b,
                                         bool(f), pool)
                 blk = _neutralize(blk, dead[r0:r1, a], dead[:, b])
+                if masked:
+                    # The valid-data footprint is evidence too: a nodata
+                    # edge that crosses a seam continues on the other side.
+                    fp = footprint_mismatch(boundary_ok[a][r0:r1], boundary_ok[b], flip=bool(f),
+                                            slack=FOOTPRINT_SLACK)
+                    if fp.any():
+                        good = blk.min(axis=1)
+                        good = good[np.isfinite(good)]
+                        scale = np.float32(np.median(good)) if good.size else np.float32(1.0)
+                        blk += np.float32(FOOTPRINT_WEIGHT) * max(scale, np.float32(1e-6)) * fp
                 blk[np.arange(r1 - r0), np.arange(r0, r1)] = np.inf  # a tile never meets itself
                 if dense:
                     blocks[idx, r0:r1] = blk
@@ -533,11 +608,12 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     fallback = np.maximum(finite.max(axis=1), 0).astype(np.float32)
 
     dead_slots = dead.reshape(-1)
+    weak_slots = weak.reshape(-1)
     best = cand[:, 0]
     buddies = np.full(4 * n, -1, np.int64)
-    ok = (best >= 0) & ~dead_slots
+    ok = (best >= 0) & ~weak_slots
     partner = np.where(ok, best // 2, 0)
-    mutual = ok & (cand[partner, 0] == 2 * np.arange(4 * n) + best % 2) & ~dead_slots[partner]
+    mutual = ok & (cand[partner, 0] == 2 * np.arange(4 * n) + best % 2) & ~weak_slots[partner]
     buddies[mutual] = best[mutual]
     log.debug("scored %d blocks of %d tiles with %s (%s); %d best-buddy sides",
               len(unique), n, name, "dense" if dense else "candidates only", mutual.sum())
@@ -545,4 +621,5 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
         n_tiles=n, orientations=tuple(orientations), dense=bool(dense), blocks=blocks, block_index=block_index,
         transposed=transposed, candidates=cand, candidate_costs=cand_cost, fallback=fallback, second=second,
         best_buddies=buddies, dead=dead_slots, measure=name,
+        coverage=np.stack([v.mean(axis=1) for v in boundary_ok], axis=1).reshape(-1).astype(np.float32),
     )

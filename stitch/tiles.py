@@ -121,15 +121,20 @@ class EdgeStrips:
     valid: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
 
     @classmethod
-    def from_pixels(cls, tiles):
-        """Edge strips of tiles held in memory, every pixel valid.
+    def from_pixels(cls, tiles, valid=None):
+        """Edge strips of tiles held in memory.
 
         ``tiles`` is a sequence of ``(bands, rows, cols)`` arrays of one shape
-        (turned or mirrored views are fine).
+        (turned or mirrored views are fine); ``valid``, optionally, one
+        ``(rows, cols)`` boolean mask per tile (False: nodata). Without it
+        every pixel is valid.
         """
         strips = [side_strips(np.ascontiguousarray(t)) for t in tiles]
         sides = tuple(np.stack([st[s] for st in strips]) for s in range(4))
-        return cls(sides, tuple(np.ones(x.shape[:-1], bool) for x in sides))
+        if valid is None:
+            return cls(sides, tuple(np.ones(x.shape[:-1], bool) for x in sides))
+        masks = [side_strips(np.ascontiguousarray(m)[None]) for m in valid]
+        return cls(sides, tuple(np.stack([mk[s][..., 0] for mk in masks]) for s in range(4)))
 
 
 @dataclass(frozen=True)

@@ -6,7 +6,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from conftest import skimage_image, write_raster
-from stitch.layout import allowed_orientations
+from stitch.layout import Placement, allowed_orientations
 from stitch.pipeline import SolveOptions, solve
 from stitch.puzzles import cut_raster, score_placement
 from stitch.search import Grid, Pins
@@ -335,3 +335,99 @@ def test_a_set_with_missing_tiles_keeps_its_true_grid(tmp_path, image, missing):
     assert scores.direct == pytest.approx((100 - missing) / 100)
     evidence = result.search.shape_evidence
     assert evidence["trusted_segment"]["tiles"] >= 25
+
+
+def _collar_folder(tmp_path, tile, angle, cover, rotate=0, keep=1):
+    """scikit-image's ``retina`` (CC0, 1411 x 1411 RGB) as a drone-style
+    flight block: nodata 0 outside a turned rectangle, cut with the tiles
+    that hold only nodata skipped, as tilers do."""
+    from rasterio.transform import from_origin
+
+    from stitch.puzzles import flight_block_mask
+
+    img = np.maximum(skimage_image("retina"), 1)
+    img[:, ~flight_block_mask(img.shape[1:], angle=angle, cover=cover)] = 0
+    src = write_raster(tmp_path / "block.tif", img, transform=from_origin(500000.0, 4100000.0, 1.0, 1.0),
+                       crs="EPSG:32633", nodata=0)
+    cut = cut_raster(src, tmp_path / "t", tile, shuffle=True, strip_georef=True, keep_georef=keep, rotate=rotate,
+                     skip_empty=True, seed=1, key_path=tmp_path / "k.csv")
+    return src, cut
+
+
+def test_cut_skip_empty_writes_no_tile_of_nodata_only(tmp_path):
+    src, cut = _collar_folder(tmp_path, 128, 25, 0.5)
+    key = cut.key
+    assert key.shape == (11, 11) and len(key.names) == 81  # 40 cells hold only nodata
+    files = sorted(p.name for p in (tmp_path / "t").glob("tile_*.tif"))
+    assert files == sorted(key.names)
+    import rasterio
+
+    for name in key.names[:10]:
+        with rasterio.open(tmp_path / "t" / name) as t:
+            assert t.dataset_mask().any()
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_a_tilted_flight_block_comes_back_pixel_for_pixel(tmp_path):
+    """A collar leaving 36 % of the grid's cells empty (all-nodata tiles
+    skipped, every edge tile part nodata), no tile georeferenced: the grid is
+    the block's box, every tile is in its cell, and the mosaic is the source
+    window pixel for pixel. The nodata edge is evidence: it continues across
+    every true seam."""
+    import rasterio
+    from rasterio.windows import Window
+
+    src, cut = _collar_folder(tmp_path, 64, 25, 0.5, keep=0)
+    key = cut.key
+    r0, c0 = int(key.rows.min()), int(key.cols.min())
+    box = (int(key.rows.max()) - r0 + 1, int(key.cols.max()) - c0 + 1)
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=1))
+    assert result.placement.shape == box
+    assert score_placement(result.placement, key).perfect
+    window = Window(c0 * 64, r0 * 64, box[1] * 64, box[0] * 64)
+    with rasterio.open(src) as s, rasterio.open(result.outputs["mosaic"]) as out:
+        np.testing.assert_array_equal(out.read(), s.read(window=window))
+
+
+@pytest.mark.filterwarnings("ignore:the 20x22 grid was inferred with a thin margin:UserWarning")
+def test_grid_inference_on_a_collar_with_half_its_cells_empty(tmp_path):
+    """A block turned by 40 degrees leaving 47 % of the grid's cells empty:
+    the grid is still the block's box (a 21 x 21 grid comes close, and the
+    run says the margin is thin), and every tile that holds at least a
+    quarter valid pixels is in its cell (the few corner tips with less are
+    left to the review)."""
+    import rasterio
+
+    src, cut = _collar_folder(tmp_path, 64, 40, 0.4)
+    key = cut.key
+    box = (int(key.rows.max() - key.rows.min()) + 1, int(key.cols.max() - key.cols.min()) + 1)
+    assert len(key.names) < 0.55 * box[0] * box[1]
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=1))
+    assert result.placement.shape == box
+    solid = []
+    for i, name in enumerate(key.names):
+        with rasterio.open(tmp_path / "t" / name) as t:
+            if t.dataset_mask().mean() >= 0.25 * 255:
+                solid.append(i)
+    assert len(solid) >= 0.85 * len(key.names)
+    sub = Placement(tuple(key.names[i] for i in solid), key.shape, key.rows[solid], key.cols[solid],
+                    key.rotations[solid], key.mirrored[solid])
+    assert score_placement(result.placement, sub).direct == 1.0
+
+
+def test_a_side_of_valid_pixels_never_pairs_with_a_side_of_nodata():
+    """Footprints: against a side that is all valid, an all-nodata side costs
+    far more than a matching one (it may only face empty cells, the border or
+    other nodata). Tiles from scikit-image's ``coffee`` (CC0), the right half
+    of one tile set to nodata."""
+    img = skimage_image("coffee")[:, 60:60 + 28 * 3, 150:150 + 28 * 3].astype(np.float32)
+    tiles = [img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)].copy() for r in range(3) for c in range(3)]
+    valid = [np.ones(t.shape[1:], bool) for t in tiles]
+    valid[4][:, 14:] = False  # the centre tile's right half (and so its right side) is nodata
+    edges = EdgeStrips.from_pixels(tiles, valid=valid)
+    table = score_seams(edges, orientations=(0,), measure="mgc")
+    # centre tile's right side (slot 4*4+1) against the left sides of tile 5 (its true neighbour) and 3
+    void_vs_valid = table.cost(4 * 4 + 1, 4 * 5 + 3)
+    valid_vs_valid = table.cost(4 * 3 + 1, 4 * 4 + 3)
+    assert table.coverage[4 * 4 + 1] == 0 and table.coverage[4 * 5 + 3] == 1
+    assert void_vs_valid > 10 * valid_vs_valid

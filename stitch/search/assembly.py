@@ -129,13 +129,31 @@ def _move_cell(r, c, k, mirror):
     return r, c
 
 
+def _alignment(members, si, sj, i, j, slot_a, slot_b, flip):
+    """How segment ``sj`` must move into ``si``'s frame for the seam between
+    tile ``i`` (in ``si``, side ``slot_a``) and tile ``j`` (in ``sj``):
+    ``(quarter_turns, mirror, d_row, d_col)``."""
+    ri, ci, oi = members[si][i]
+    d = _where(oi, slot_a % 4)
+    want_o = int(TURN_TO_FACE[int(oi >= 4) ^ flip, slot_b % 4, (d + 2) % 4])
+    want_r, want_c = ri + STEPS[d][0], ci + STEPS[d][1]
+    rj, cj, oj = members[sj][j]
+    k, mirror = _frame_move(oj, want_o)
+    mr, mc = _move_cell(rj, cj, k, mirror)
+    return k, mirror, want_r - mr, want_c - mc
+
+
 def trusted_segments(best_buddies, orientations, confidence=None):
     """Rigid segments joined by :func:`loop_seams`, largest first.
 
     Seams are taken most confident first (``confidence`` per seam, in the
-    order :func:`loop_seams` returns them; by default in that order); each
-    joins two segments, turning and shifting the smaller onto the larger,
-    unless two tiles would then share a cell.
+    order :func:`loop_seams` returns them; by default in that order). A tile
+    on its own joins a segment by one seam; two segments of two or more
+    tiles join only when at least two seams between them agree on how they
+    lie (one wrong loop in uniform ground then cannot drag a segment off),
+    and never when two tiles would share a cell. The smaller segment is
+    turned and shifted onto the larger. Rounds of joins repeat until none is
+    left.
 
     Returns
     -------
@@ -146,49 +164,50 @@ def trusted_segments(best_buddies, orientations, confidence=None):
     if len(seams) == 0:
         return []
     order = np.arange(len(seams)) if confidence is None else np.argsort(-np.asarray(confidence), kind="stable")
+    seams = [tuple(int(v) for v in seams[q]) for q in order]
+    tiles = sorted({s // 4 for seam in seams for s in seam[:2]})
     # tile -> segment id; segment id -> {tile: (row, col, orientation)} and {cell: tile}
-    owner = {}
-    members = {}
-    cells = {}
-    next_id = 0
-    for slot_a, slot_b, flip in seams[order]:
-        i, j = int(slot_a) // 4, int(slot_b) // 4
-        for t in (i, j):
-            if t not in owner:
-                owner[t] = next_id
-                members[next_id] = {t: (0, 0, 0)}
-                cells[next_id] = {(0, 0): t}
-                next_id += 1
-        si, sj = owner[i], owner[j]
-        # Move the smaller segment onto the larger one.
-        if len(members[si]) < len(members[sj]):
-            i, j, slot_a, slot_b, si, sj = j, i, slot_b, slot_a, sj, si
-        if si == sj:
-            continue  # already in one segment
-        ri, ci, oi = members[si][i]
-        d = _where(oi, int(slot_a) % 4)
-        want_o = int(TURN_TO_FACE[int(oi >= 4) ^ int(flip), int(slot_b) % 4, (d + 2) % 4])
-        want_r, want_c = ri + STEPS[d][0], ci + STEPS[d][1]
-        rj, cj, oj = members[sj][j]
-        k, mirror = _frame_move(oj, want_o)
-        mr, mc = _move_cell(rj, cj, k, mirror)
-        dr, dc = want_r - mr, want_c - mc
-        moved = {}
-        for t, (r, c, o) in members[sj].items():
-            r2, c2 = _move_cell(r, c, k, mirror)
-            r2, c2 = r2 + dr, c2 + dc
-            if (r2, c2) in cells[si]:
-                moved = None
-                break
-            rot, mir = turned_orientations(np.array([o % 4]), np.array([o >= 4]), k, mirror)
-            moved[t] = (r2, c2, int(mir[0]) * 4 + int(rot[0]))
-        if moved is None:
-            continue  # the two segments overlap: this seam is not to be trusted
-        for t, (r, c, o) in moved.items():
-            members[si][t] = (r, c, o)
-            cells[si][(r, c)] = t
-            owner[t] = si
-        del members[sj], cells[sj]
+    owner = {t: t for t in tiles}
+    members = {t: {t: (0, 0, 0)} for t in tiles}
+    cells = {t: {(0, 0): t} for t in tiles}
+    while True:
+        proposals = {}  # (into, moved, alignment) -> [support, first seam]
+        for q, (slot_a, slot_b, flip) in enumerate(seams):
+            i, j = slot_a // 4, slot_b // 4
+            si, sj = owner[i], owner[j]
+            if si == sj:
+                continue
+            if (len(members[si]), -si) < (len(members[sj]), -sj):  # move the smaller onto the larger
+                i, j, slot_a, slot_b, si, sj = j, i, slot_b, slot_a, sj, si
+            key = (si, sj, _alignment(members, si, sj, i, j, slot_a, slot_b, flip))
+            entry = proposals.setdefault(key, [0, q])
+            entry[0] += 1
+        joined, touched = False, set()
+        for (si, sj, (k, mirror, dr, dc)), (support, _) in sorted(proposals.items(), key=lambda kv: kv[1][1]):
+            if si in touched or sj in touched:
+                continue  # this round moved one of them: look again next round
+            if support < (1 if min(len(members[si]), len(members[sj])) == 1 else 2):
+                continue
+            moved = {}
+            for t, (r, c, o) in members[sj].items():
+                r2, c2 = _move_cell(r, c, k, mirror)
+                r2, c2 = r2 + dr, c2 + dc
+                if (r2, c2) in cells[si]:
+                    moved = None
+                    break
+                rot, mir = turned_orientations(np.array([o % 4]), np.array([o >= 4]), k, mirror)
+                moved[t] = (r2, c2, int(mir[0]) * 4 + int(rot[0]))
+            if moved is None:
+                continue  # the two segments would overlap: these seams are not to be trusted
+            for t, (r, c, o) in moved.items():
+                members[si][t] = (r, c, o)
+                cells[si][(r, c)] = t
+                owner[t] = si
+            del members[sj], cells[sj]
+            touched.update((si, sj))
+            joined = True
+        if not joined:
+            break
     out = []
     for m in members.values():
         if len(m) < 2:

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import OptionError
+from ..orientation import FACE, STEPS
 from .assembly import Segment
 from .regrowth import regrow
 from .types import Grid
@@ -27,18 +28,24 @@ log = logging.getLogger(__name__)
 #: only a free greedy placement suggests (a few tiles missing, not a scatter).
 MIN_FILL = 0.8
 
-#: Smallest share in a grid with holes that a trusted segment's box vouches
-#: for: a collar of skipped all-nodata tiles leaves up to 60 % of the cells
-#: empty.
+#: Smallest share in a grid with holes that a nodata collar (sides that hold
+#: nodata) or a trusted segment's box vouches for: a collar of skipped
+#: all-nodata tiles leaves up to 60 % of the cells empty.
 MIN_FILL_SEGMENT = 0.4
 
 #: A trusted segment suggests grids with holes around it only when it holds
 #: at least this share of the tiles.
 SEGMENT_SHARE = 0.25
 
-#: Most grids with holes compared besides the free greedy box (fewest empty
-#: cells first).
+#: Grids with holes compared besides the free greedy box: this many with the
+#: fewest empty cells, and every one at most BOX_SLACK rows and columns
+#: larger than the largest trusted segment's box.
 MAX_HOLEY_SHAPES = 12
+BOX_SLACK = 3
+
+#: In a grid less than MIN_FILL full, at least this share of the tile sides
+#: facing an empty cell must hold nodata (our choice, no source).
+EXPLAINED_SHARE = 0.8
 
 #: How many more best-buddy seams (as a factor) a grid with holes must keep
 #: than a full one before it wins.
@@ -142,6 +149,28 @@ def _placed_box(grid):
     return int(rows[-1] - rows[0] + 1), int(cols[-1] - cols[0] + 1)
 
 
+def _explained_holes(problem, grid):
+    """Share of the tile sides facing an empty cell inside the grid that hold
+    some nodata (1 when no side faces one)."""
+    gt, go = grid
+    coverage = problem.table.coverage
+    if coverage is None:
+        return 0.0
+    rows, cols = gt.shape
+    facing, explained = 0, 0
+    for d, (dr, dc) in enumerate(STEPS):
+        r0, r1 = max(0, -dr), rows - max(0, dr)
+        c0, c1 = max(0, -dc), cols - max(0, dc)
+        here = gt[r0:r1, c0:c1]
+        there = gt[r0 + dr:r1 + dr, c0 + dc:c1 + dc]
+        hit = (here >= 0) & (there < 0)
+        if hit.any():
+            slots = 4 * here[hit] + FACE[go[r0:r1, c0:c1][hit], d]
+            facing += int(hit.sum())
+            explained += int(np.sum(coverage[slots] < 1))
+    return explained / facing if facing else 1.0
+
+
 def largest_segment(problem):
     """The largest trusted segment of a problem's seam table, or None."""
     from .assembly import loop_seams, trusted_segments
@@ -154,16 +183,24 @@ def largest_segment(problem):
     return segments[0] if segments else None
 
 
-def _holey_shapes(n, box, contains, bound):
+def _holey_shapes(n, box, contains, bound, quarter):
     """Grids with more cells than tiles, at most ``bound`` cells, that contain
-    ``box``: fewest empty cells first, then the least elongated."""
+    ``box``: the :data:`MAX_HOLEY_SHAPES` with the fewest empty cells (then
+    the least elongated), and those at most :data:`BOX_SLACK` rows and
+    columns larger than the box (the tiles a segment leaves out, such as
+    collar tiles along its edge, extend it by a row or two on each side)."""
     out = []
     for r in range(2, int(bound) + 1):
         for c in range(max(2, -(-(n + 1) // r)), int(bound // r) + 1):
             if contains((r, c)):
                 out.append((r, c))
     out.sort(key=lambda s: (s[0] * s[1], max(s) / min(s), s))
-    return out[:MAX_HOLEY_SHAPES]
+
+    def near(s):
+        boxes = [box, box[::-1]] if quarter else [box]
+        return any(0 <= s[0] - b[0] <= BOX_SLACK and 0 <= s[1] - b[1] <= BOX_SLACK for b in boxes)
+
+    return out[:MAX_HOLEY_SHAPES] + [s for s in out[MAX_HOLEY_SHAPES:] if near(s)]
 
 
 def shapes_to_try(problem, shape, seed, kfree, holes, segment=None):
@@ -198,13 +235,16 @@ def shapes_to_try(problem, shape, seed, kfree, holes, segment=None):
             # A free run can wander off and leave a box far larger than the
             # set: it is only a candidate while at least MIN_FILL of its
             # cells hold a tile (sparser sets need --grid or a segment).
+            # Sides that hold nodata (a collar) explain empty cells: a tiler
+            # skips the tiles that hold only nodata.
+            fill = MIN_FILL_SEGMENT if problem.table.has_collar else MIN_FILL
             free = _free_shape(problem, seed, kfree)
-            if n <= free[0] * free[1] <= n / MIN_FILL and free not in shapes and contains(free):
+            if n <= free[0] * free[1] <= n / fill and free not in shapes and contains(free):
                 shapes.append(free)
             if segment is not None and len(segment) >= SEGMENT_SHARE * n:
                 area = box[0] * box[1]
-                bound = max(n / MIN_FILL, area) if n >= MIN_FILL_SEGMENT * area else n / MIN_FILL
-                shapes += [s for s in _holey_shapes(n, box, contains, bound) if s not in shapes]
+                bound = max(n / fill, area) if n >= MIN_FILL_SEGMENT * area else n / fill
+                shapes += [s for s in _holey_shapes(n, box, contains, bound, quarter) if s not in shapes]
         if not shapes:  # nothing holds the segment: do not let it rule out every grid
             shapes = candidate_shapes(n, transposes=True)
     fitting = [s for s in shapes if problem.pins.fits(s)]
@@ -269,12 +309,26 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
             if buddies[s] >= 0.9 * top:
                 grids[s], _ = regrow(problem, grids[s], settings, deadline, rounds=3, tick=tick)
                 buddies[s] = problem.buddy_seams(grids[s])
+    # Below MIN_FILL a grid's empty cells must be explained by the collar:
+    # the tile sides around them hold nodata, as around a skipped tile.
+    sparse = [s for s in grids if n < MIN_FILL * s[0] * s[1]]
+    for s in sparse:
+        if len(grids) > 1 and _explained_holes(problem, grids[s]) < EXPLAINED_SHARE:
+            log.debug("shape %dx%d: its empty cells border valid data; left out", s[0], s[1])
+            del grids[s], buddies[s]
     scores, keys = {}, {}
+    collar = problem.table.has_collar
     for s, grid in grids.items():
         b = buddies[s]
-        keys[s] = (-(b if s[0] * s[1] == n else b / HOLES_MARGIN), s[0] * s[1], max(s) / min(s),
-                   problem.normalized_cost(grid))
+        evidence = b if s[0] * s[1] == n else b / HOLES_MARGIN
+        explained = _explained_holes(problem, grid) if collar and s[0] * s[1] > n else None
+        if explained is not None:
+            # In a collar, empty cells next to valid data count against a grid.
+            evidence *= 0.5 + 0.5 * explained
+        keys[s] = (-evidence, s[0] * s[1], max(s) / min(s), problem.normalized_cost(grid))
         scores[s] = {"buddy_pairs": b, "mean_normalized_cost": keys[s][3]}
+        if explained is not None:
+            scores[s]["explained_holes"] = round(explained, 4)
         log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], b, keys[s][3])
     ranked = sorted(keys, key=keys.get)
     best = ranked[0]
