@@ -25,7 +25,7 @@ from .files import atomic_path, write_text_atomic
 from .georef import world_file_path, world_file_text
 from .orientation import orient
 
-__all__ = ["CAUTION", "choose_nodata", "mosaic_profile", "write_mosaic"]
+__all__ = ["CAUTION", "choose_nodata", "hole_marking", "mosaic_profile", "write_mosaic"]
 
 log = logging.getLogger(__name__)
 
@@ -43,19 +43,28 @@ GDAL_CACHE_BYTES = 128 * 2**20
 
 
 def choose_nodata(dtype, tile_nodata, has_holes):
-    """Nodata for the mosaic: the tiles' own, else one only holes need.
+    """Nodata for the mosaic: the tiles' own, else NaN for float holes.
 
-    Holes get the lowest value of an integer type (0 for unsigned, which is
-    what most viewers show as empty) and NaN for floats.
+    Integer mosaics with holes and no nodata of their own get an internal
+    mask band instead (:func:`hole_marking`): any value of an integer type
+    may be a valid pixel (0 in a dark shadow or a water body), and a nodata
+    value would mask those too.
     """
     if tile_nodata is not None:
         return tile_nodata
-    if not has_holes:
-        return None
-    dt = np.dtype(dtype)
-    if dt.kind == "f":
+    if has_holes and np.dtype(dtype).kind == "f":
         return float("nan")
-    return int(np.iinfo(dt).min)
+    return None
+
+
+def hole_marking(dtype, tile_nodata, has_holes):
+    """How empty cells are marked in the mosaic: ``"none"`` (there are
+    none), ``"nodata <value>"`` (the tiles' own nodata, or NaN for floats), or
+    ``"internal mask band"`` (GDAL's per-dataset mask, 0 in holes)."""
+    if not has_holes:
+        return "none"
+    nodata = choose_nodata(dtype, tile_nodata, has_holes)
+    return "internal mask band" if nodata is None else f"nodata {nodata}"
 
 
 def mosaic_profile(tileset, placement, georef, nodata):
@@ -113,15 +122,19 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     wld = world_file_path(path)
     has_holes = bool(placement.shape[0] * placement.shape[1] > placement.placed.sum())
     nodata = choose_nodata(tileset.dtype, tileset.nodata, has_holes)
+    masked = has_holes and nodata is None
     profile = mosaic_profile(tileset, placement, georef, nodata)
     with atomic_path(path, overwrite=overwrite) as final_tmp:
         tmp = final_tmp.with_name(final_tmp.name + ".gtiff") if cog else final_tmp
         try:
-            with warnings.catch_warnings(), rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES):
+            with warnings.catch_warnings(), rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES,
+                                                         GDAL_TIFF_INTERNAL_MASK=True):
                 warnings.simplefilter("ignore", _GdalNotGeoreferenced)
                 with rasterio.open(tmp, "w", **profile) as dst:
                     if has_holes and nodata is not None:
                         _fill_nodata(dst, nodata)
+                    if masked:
+                        _clear_mask(dst)
                     done = 0
                     # Row-major cell order: each output block is finished
                     # before the writer moves on, so GDAL's cache stays small.
@@ -132,6 +145,8 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
                         window = Window(placement.cols[i] * tileset.width, placement.rows[i] * tileset.height,
                                         pixels.shape[2], pixels.shape[1])
                         dst.write(pixels, window=window)
+                        if masked:
+                            dst.write_mask(np.full(pixels.shape[1:], 255, np.uint8), window=window)
                         done += 1
                         if progress is not None:
                             progress("write", done, len(order))
@@ -166,6 +181,14 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     write_text_atomic(wld, world_file_text(georef.transform), overwrite=overwrite)
     log.info("wrote %s (%d x %d px) and %s", path, profile["width"], profile["height"], wld.name)
     return {"mosaic": path, "world_file": wld}
+
+
+def _clear_mask(dst):
+    """Set the whole dataset mask to 0 (hole), one block row at a time."""
+    block = 256
+    for row in range(0, dst.height, block):
+        h = min(block, dst.height - row)
+        dst.write_mask(np.zeros((h, dst.width), np.uint8), window=Window(0, row, dst.width, h))
 
 
 def _fill_nodata(dst, nodata):

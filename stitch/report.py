@@ -21,7 +21,7 @@ import numpy as np
 from .errors import OutputError
 from .files import check_outputs, write_bytes_atomic, write_text_atomic
 from .layout import write_placement_csv
-from .mosaic import CAUTION
+from .mosaic import CAUTION, hole_marking
 from .review import convergence_png, index_html, preview_png, tiles_geojson
 
 __all__ = ["REPORT_FILES", "check_report", "flagged_rows", "library_versions", "report_paths", "summary_dict", "write_report"]
@@ -94,6 +94,9 @@ def summary_dict(result):
         "grid": list(p.shape),
         "grid_source": "given" if result.options.grid else "inferred",
         "grid_inference": result.search.shape_evidence,
+        "holes": {"cells": int(p.shape[0] * p.shape[1] - p.placed.sum()),
+                  "marked_by": hole_marking(result.tileset.dtype, result.tileset.nodata,
+                                            bool(p.shape[0] * p.shape[1] > p.placed.sum()))},
         "seam_measure": result.measure,
         "shape_scores": result.search.shape_scores,
         "search": {"strategy": result.search.strategy, "generations": result.search.generations,

@@ -103,17 +103,17 @@ def _num(v):
     return None if v is None or not np.isfinite(v) else round(float(v), 4)
 
 
-def _display(array, nodata):
-    """(bands, rows, cols) as RGB uint8 for viewing: 8-bit as is, others stretched 2-98 % per band."""
+def _display(array, valid):
+    """(bands, rows, cols) as RGB uint8 for viewing: 8-bit as is, others
+    stretched 2-98 % per band over the ``valid`` pixels (GDAL's dataset mask)."""
     bands = array[:3] if array.shape[0] >= 3 else np.repeat(array[:1], 3, axis=0)
+    valid = np.asarray(valid, bool).copy()
     if array.dtype == np.uint8:
-        valid = np.ones(bands.shape[1:], bool) if nodata is None else ~np.all(array == nodata, axis=0)
         out = bands.copy()
         out[:, ~valid] = 0
         return np.moveaxis(out, 0, -1), valid
-    valid = np.ones(bands.shape[1:], bool)
-    if nodata is not None:
-        valid &= ~np.all(array == nodata, axis=0) if not np.isnan(nodata) else ~np.all(np.isnan(array), axis=0)
+    if array.dtype.kind == "f":
+        valid &= ~np.all(np.isnan(array), axis=0)
     out = np.zeros(bands.shape, np.uint8)
     for k in range(3):
         b = bands[k].astype(np.float64)
@@ -142,8 +142,8 @@ def preview_png(result):
     w, h = max(1, int(round(full_w * f))), max(1, int(round(full_h * f)))
     with rasterio.open(result.outputs["mosaic"]) as src:
         data = src.read(out_shape=(src.count, h, w), resampling=Resampling.average)
-        nodata = src.nodata
-    rgb, _ = _display(data, nodata)
+        valid = src.dataset_mask(out_shape=(h, w)) > 0
+    rgb, _ = _display(data, valid)
     legend_h = 28
     img = Image.new("RGB", (w, h + legend_h), WHITE)
     img.paste(Image.fromarray(rgb), (0, 0))

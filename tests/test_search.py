@@ -83,12 +83,45 @@ def test_missing_tiles_leave_holes_and_neighbours_stay_right(tmp_path):
     assert scores.missing == 5
     import rasterio
 
-    with rasterio.open(result.outputs["mosaic"]) as out:  # holes are nodata
+    with rasterio.open(result.outputs["mosaic"]) as out:
+        # Holes are masked (GDAL's per-dataset mask), not given a nodata
+        # value that valid 8-bit pixels could hold.
         holes = np.argwhere(p.grid()[0] < 0)
-        data = out.read()
-        assert out.nodata is not None and len(holes) == 5
+        mask = out.dataset_mask()
+        assert out.nodata is None and len(holes) == 5
+        assert out.mask_flag_enums[0] == [rasterio.enums.MaskFlags.per_dataset]
+        hole = np.zeros(mask.shape, bool)
         for r, c in holes:
-            assert (data[:, r * 28:(r + 1) * 28, c * 28:(c + 1) * 28] == out.nodata).all()
+            hole[r * 28:(r + 1) * 28, c * 28:(c + 1) * 28] = True
+        assert (mask[hole] == 0).all() and (mask[~hole] == 255).all()
+    assert result_summary(result)["holes"] == {"cells": 5, "marked_by": "internal mask band"}
+
+
+def result_summary(result):
+    import json
+
+    return json.loads((result.outputs["report_summary"]).read_text())
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_valid_zero_pixels_stay_valid_beside_holes(tmp_path):
+    """An 8-bit tile set with black (0) pixels and a missing tile: the black
+    pixels stay valid in the mosaic; only the hole is masked. Pixels from
+    scikit-image's ``coffee`` (CC0) with a black stripe painted in."""
+    import rasterio
+
+    img = skimage_image("coffee")[:, 60:172, 150:262].copy()
+    img[:, 50:60, :] = 0
+    src = write_raster(tmp_path / "src.tif", img)
+    cut = cut_raster(src, tmp_path / "t", 28, shuffle=True, seed=2, key_path=tmp_path / "k.csv")
+    (tmp_path / "t" / cut.key.names[15]).unlink()  # the bottom-right tile
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=2, grid=(4, 4)))
+    assert score_placement(result.placement, cut.key, frame="fixed").direct == pytest.approx(15 / 16)
+    with rasterio.open(result.outputs["mosaic"]) as out:
+        data, mask = out.read(), out.dataset_mask()
+    assert (data[:, 50:60, :] == 0).all()  # the black stripe is in the mosaic...
+    assert (mask[50:60, :] == 255).all()   # ...and valid
+    assert (mask[84:, 84:] == 0).all() and int((mask == 0).sum()) == 28 * 28  # only the hole is masked
 
 
 def test_search_plugin_through_entry_points(tmp_path, monkeypatch, tiles_dir):
