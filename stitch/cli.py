@@ -36,6 +36,9 @@ app = typer.Typer(
 
 log = logging.getLogger("stitch")
 
+#: Exit code of ``solve --fail-if-doubtful`` when the verdict is doubtful.
+DOUBTFUL_EXIT = 3
+
 # Options shared by several commands, defined once.
 Verbose = Annotated[int, typer.Option("--verbose", "-v", count=True, help="More detail; -vv for debug logging and tracebacks.")]
 Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="Only errors.")]
@@ -217,6 +220,9 @@ def solve(
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
     cog: Annotated[bool, typer.Option("--cog", help="Write a Cloud Optimized GeoTIFF (GDAL's COG driver).")] = False,
     max_tile_pixels: Annotated[int, typer.Option(help="Refuse tiles whose header claims more pixels.")] = MAX_TILE_PIXELS,
+    fail_if_doubtful: Annotated[bool, typer.Option(
+        "--fail-if-doubtful", help=f"Exit with code {DOUBTFUL_EXIT} when the run's verdict is doubtful "
+                                   "(the outputs are still written), for scripts.")] = False,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,
@@ -246,8 +252,9 @@ def solve(
         with _progress_bars(not quiet and sys.stderr.isatty()) as bars, _deferred_interrupt(bars) as progress:
             result = run(tiles_dir, output, options=options, report_dir=report, overwrite=overwrite,
                          progress=progress)
+    exit_code = DOUBTFUL_EXIT if fail_if_doubtful and result.verdict.level == "doubtful" else 0
     if quiet:
-        return
+        raise typer.Exit(code=exit_code)
     p = result.placement
     s = result.search
     how = f"{s.strategy}, {s.generations} generations" if s.strategy == "evolution" else s.strategy
@@ -274,7 +281,9 @@ def solve(
         typer.echo(f"{len(flagged)} tile(s) need a look (confidence < {options.confidence_threshold}): {shown}")
     else:
         typer.echo("no tile flagged for review")
+    typer.echo(f"verdict: {result.verdict}")
     typer.echo(f"caution: {CAUTION}")
+    raise typer.Exit(code=exit_code)
 
 
 @app.command()

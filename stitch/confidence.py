@@ -1,53 +1,90 @@
-"""How sure the seam table is of a placement: per seam, per side, per tile.
+"""How sure the seam table is of a placement: per seam, per side, per tile, per run.
 
-Reads a :class:`stitch.seams.SeamTable` and a :class:`stitch.layout.Placement`;
-the search's agreement (the share of its best placements that hold each
-seam) is the third sign.
+One scale, [0, 1], throughout. A seam's confidence is the mean of three signs
+of a right join: the two sides are best buddies (Pomeranz, Shemesh &
+Ben-Shahar, CVPR 2011); its normalised margin ``1 - cost / second best``;
+and the share of the search's best placements that hold it (its
+agreement). A side's value is the confidence of the seam it makes, a tile's
+the mean over its seams, and the run's verdict rests on how many tiles and
+seams are confident.
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 
 from .layout import seam_pairs
 from .orientation import FACE, STEPS
 
-__all__ = ["side_confidence", "tile_confidence"]
+__all__ = ["Verdict", "run_verdict", "seam_confidence", "side_confidence", "tile_confidence"]
+
+#: Verdict thresholds (our choice, no source): a run is ``"good"`` when at
+#: least this share of its placed tiles is confident and the grid is sure...
+GOOD_SHARE = 0.9
+#: ...and ``"doubtful"`` when fewer than this share of its tiles are
+#: confident, or fewer than DOUBTFUL_BUDDIES of its seams join best buddies;
+#: anything between needs the flagged tiles checked.
+DOUBTFUL_SHARE = 0.5
+DOUBTFUL_BUDDIES = 0.25
 
 
-def side_confidence(placement, table):
+def seam_confidence(table, slot_a, slot_b, flip, agreement=None):
+    """Confidence of seams given as side slots (vectorised), in [0, 1].
+
+    Parameters
+    ----------
+    table : stitch.seams.SeamTable
+    slot_a, slot_b, flip : array_like of int
+    agreement : ndarray, shape (4 * n_tiles,), optional
+        Share of the search's best placements holding each side's seam; 1
+        when not given.
+    """
+    slot_a, slot_b, flip = (np.asarray(v, np.int64) for v in (slot_a, slot_b, flip))
+    is_bb = (table.best_buddies[slot_a] == 2 * slot_b + flip).astype(float)
+    compat = table.confidence(slot_a, slot_b, flip)
+    agree = np.ones(slot_a.shape) if agreement is None else (agreement[slot_a] + agreement[slot_b]) / 2
+    return (is_bb + compat + agree) / 3
+
+
+def side_confidence(placement, table, agreement=None):
     """Seam confidence on each side of every tile as it sits in the mosaic.
 
     Returns
     -------
     ndarray, shape (n_tiles, 4)
-        Columns: top, right, bottom, left in the mosaic; NaN at the border,
-        next to a hole, or for unplaced tiles.
+        Columns: top, right, bottom, left in the mosaic, on the scale of
+        :func:`seam_confidence`; NaN at the border, next to a hole, or for
+        unplaced tiles.
     """
     n = len(placement.names)
     out = np.full((n, 4), np.nan)
     grid, orient = placement.grid()
     rows, cols = placement.shape
-    for i in np.flatnonzero(placement.placed):
-        r, c, o = placement.rows[i], placement.cols[i], placement.orientations[i]
-        for d, (dr, dc) in enumerate(STEPS):
-            rr, cc = r + dr, c + dc
-            if 0 <= rr < rows and 0 <= cc < cols and grid[rr, cc] >= 0:
-                j, oj = grid[rr, cc], orient[rr, cc]
-                sa = 4 * i + int(FACE[o, d])
-                sb = 4 * j + int(FACE[oj, (d + 2) % 4])
-                out[i, d] = float(table.confidence(sa, sb, int((o >= 4) != (oj >= 4))))
+    idx = np.flatnonzero(placement.placed)
+    if idx.size == 0:
+        return out
+    r, c, o = placement.rows[idx], placement.cols[idx], placement.orientations[idx]
+    for d, (dr, dc) in enumerate(STEPS):
+        rr, cc = r + dr, c + dc
+        inside = (rr >= 0) & (rr < rows) & (cc >= 0) & (cc < cols)
+        j = np.full(idx.shape, -1)
+        j[inside] = grid[rr[inside], cc[inside]]
+        ok = j >= 0
+        if not ok.any():
+            continue
+        oj = orient[rr[ok], cc[ok]]
+        sa = 4 * idx[ok] + FACE[o[ok], d]
+        sb = 4 * j[ok] + FACE[oj, (d + 2) % 4]
+        flip = ((o[ok] >= 4) != (oj >= 4)).astype(np.int64)
+        out[idx[ok], d] = seam_confidence(table, sa, sb, flip, agreement)
     return out
 
 
 def tile_confidence(placement, table, agreement=None):
-    """Per-tile confidence in [0, 1] from the seams each tile makes.
-
-    A seam scores the mean of three signs of a right join: the two sides are
-    best buddies (Pomeranz, Shemesh & Ben-Shahar, CVPR 2011); its normalised
-    confidence ``1 - cost / second best``; and the share of the final elite
-    holding it (``agreement``). A tile scores the mean over its seams; a tile
-    with no placed neighbour scores 0.
+    """Per-tile confidence in [0, 1]: the mean of its seams'
+    :func:`seam_confidence`; a tile with no placed neighbour scores 0.
 
     Parameters
     ----------
@@ -65,12 +102,85 @@ def tile_confidence(placement, table, agreement=None):
     if len(pairs) == 0:
         return conf
     sa, sb, flip = pairs.T
-    is_bb = (table.best_buddies[sa] == 2 * sb + flip).astype(float)
-    compat = table.confidence(sa, sb, flip)
-    agree = np.ones(len(pairs)) if agreement is None else (agreement[sa] + agreement[sb]) / 2
-    seam_conf = (is_bb + compat + agree) / 3
+    seam_conf = seam_confidence(table, sa, sb, flip, agreement)
     tiles = np.concatenate([sa // 4, sb // 4])
     total = np.bincount(tiles, weights=np.concatenate([seam_conf, seam_conf]), minlength=n)
     count = np.bincount(tiles, minlength=n)
     np.divide(total, count, out=conf, where=count > 0)
     return conf
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """What a run as a whole is worth.
+
+    Attributes
+    ----------
+    level : {"good", "check", "doubtful"}
+        ``good``: nearly every tile rests on confident seams and the grid is
+        sure; ``doubtful``: most of the mosaic does not (do not use it
+        without a human going over it); ``check``: look at the flagged tiles.
+    confident_tiles : float
+        Share of placed tiles at or above the confidence threshold.
+    buddy_seams : float
+        Share of the mosaic's seams that join best buddies.
+    grid : str
+        ``"given"``, ``"inferred"`` or ``"inferred, thin margin"``.
+    reasons : tuple of str
+    """
+
+    level: str
+    confident_tiles: float
+    buddy_seams: float
+    grid: str
+    reasons: tuple = ()
+
+    def as_dict(self):
+        return {"level": self.level, "confident_tiles": round(self.confident_tiles, 4),
+                "buddy_seams": round(self.buddy_seams, 4), "grid": self.grid, "reasons": list(self.reasons)}
+
+    def __str__(self):
+        text = (f"{self.level}: {self.confident_tiles:.0%} of the tiles rest on confident seams, "
+                f"{self.buddy_seams:.0%} of the seams join best buddies; grid {self.grid}")
+        return text + (f" ({'; '.join(self.reasons)})" if self.reasons else "")
+
+
+def run_verdict(placement, table, *, threshold=0.5, grid_given=False, shape_evidence=None):
+    """The run's :class:`Verdict` from its tile confidences and seams.
+
+    Parameters
+    ----------
+    placement : stitch.layout.Placement
+        With confidence.
+    table : stitch.seams.SeamTable
+    threshold : float
+        Tiles below it need a look.
+    grid_given : bool
+    shape_evidence : dict, optional
+        :attr:`stitch.search.SearchResult.shape_evidence`.
+    """
+    placed = placement.placed
+    conf = np.nan_to_num(placement.confidence[placed], nan=0.0)
+    confident = float(np.mean(conf >= threshold)) if conf.size else 0.0
+    pairs = seam_pairs(placement)
+    if len(pairs):
+        sa, sb, flip = pairs.T
+        buddies = float(np.mean(table.best_buddies[sa] == 2 * sb + flip))
+    else:
+        buddies = 0.0
+    thin = bool(shape_evidence and shape_evidence.get("thin"))
+    grid = "given" if grid_given else ("inferred, thin margin" if thin else "inferred")
+    reasons = []
+    if confident < DOUBTFUL_SHARE or buddies < DOUBTFUL_BUDDIES:
+        level = "doubtful"
+        reasons.append("most of the mosaic rests on weak evidence: do not use it without checking it tile by "
+                       "tile; --grid, --pin or control points may help")
+    elif confident >= GOOD_SHARE and not thin:
+        level = "good"
+    else:
+        level = "check"
+        if thin:
+            reasons.append("the inferred grid barely beats another; give --grid if you know it")
+        if confident < GOOD_SHARE:
+            reasons.append(f"{int((conf < threshold).sum())} tile(s) below the threshold")
+    return Verdict(level, confident, buddies, grid, tuple(reasons))

@@ -32,7 +32,7 @@ from .georef import (
 from .layout import Placement, allowed_orientations, normalize_frame
 from .mosaic import write_mosaic
 from .report import check_report, report_paths, write_report
-from .confidence import side_confidence, tile_confidence
+from .confidence import run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
 from .tiles import MAX_TILE_PIXELS, read_tileset
@@ -137,6 +137,8 @@ class SolveResult:
         Indices of tiles that were pinned.
     measure : str
         Seam measure that scored the seams (the one ``"auto"`` chose).
+    verdict : stitch.confidence.Verdict or None
+        What the run as a whole is worth.
     """
 
     placement: Placement
@@ -151,6 +153,7 @@ class SolveResult:
     side_scores: np.ndarray | None = None
     pinned: frozenset = frozenset()
     measure: str = ""
+    verdict: object = None
 
     @property
     def flagged(self):
@@ -320,7 +323,10 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
 
     t0 = time.perf_counter()
     placement, search, table, pins = place_tiles(tileset, options, progress=progress)
-    sides = side_confidence(placement, table)
+    sides = side_confidence(placement, table, search.agreement)
+    sides[tileset.blank] = np.where(np.isnan(sides[tileset.blank]), np.nan, 0.0)  # blank tiles: no evidence
+    verdict = run_verdict(placement, table, threshold=options.confidence_threshold,
+                          grid_given=options.grid is not None, shape_evidence=search.shape_evidence)
     timings["place"] = time.perf_counter() - t0
 
     georef, fit = _georeference(options, placement, tileset)
@@ -357,7 +363,7 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         timings["write"] = time.perf_counter() - t0
         outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
         result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit,
-                             sides, frozenset(pins.tiles), table.measure)
+                             sides, frozenset(pins.tiles), table.measure, verdict)
         write_report(result, report_dir, overwrite=overwrite)
     except BaseException:
         for p in planned:

@@ -94,6 +94,7 @@ def summary_dict(result):
         "grid": list(p.shape),
         "grid_source": "given" if result.options.grid else "inferred",
         "grid_inference": result.search.shape_evidence,
+        "verdict": result.verdict.as_dict() if result.verdict is not None else None,
         "holes": {"cells": int(p.shape[0] * p.shape[1] - p.placed.sum()),
                   "marked_by": hole_marking(result.tileset.dtype, result.tileset.nodata,
                                             bool(p.shape[0] * p.shape[1] > p.placed.sum()))},

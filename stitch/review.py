@@ -242,15 +242,25 @@ def index_html(summary, preview, convergence, flagged_rows):
         for r in flagged_rows
     ) or '<tr><td colspan="7">no tile flagged</td></tr>'
     g = summary["georeference"]
+    ev = summary.get("grid_inference")
+    inference = ""
+    if ev:
+        inference = (f"; runner-up {ev['runner_up'][0]} x {ev['runner_up'][1]}, margin {ev['margin']:.1%}"
+                     if ev["runner_up"] else "; no other grid tried is a real alternative")
+    v = summary["verdict"]
     facts = [
+        ("verdict", f"{v['level']}: {v['confident_tiles']:.0%} of the tiles rest on confident seams, "
+                    f"{v['buddy_seams']:.0%} of the seams join best buddies"
+                    + (f" ({'; '.join(v['reasons'])})" if v["reasons"] else "")),
         ("tiles", f"{summary['inputs']['tiles']} ({summary['inputs']['tile_size'][0]} x "
                   f"{summary['inputs']['tile_size'][1]} px, {summary['inputs']['bands']} band(s), "
                   f"{summary['inputs']['dtype']})"),
-        ("grid", f"{summary['grid'][0]} x {summary['grid'][1]} ({summary['grid_source']})"),
+        ("grid", f"{summary['grid'][0]} x {summary['grid'][1]} ({summary['grid_source']}{inference})"),
         ("georeference", f"{g['source']}" + (f" — {g['crs']}" if g['crs'] else "")),
         ("search", f"{summary['search']['strategy']}, {summary['search']['generations']} generations, "
                    f"seed {summary['options']['seed']}"),
-        ("seam measure", summary["options"]["measure"]),
+        ("seam measure", summary["seam_measure"]
+         + (" (chosen by auto)" if summary["options"]["measure"] == "auto" else "")),
         ("flagged tiles", str(len(summary["flagged_tiles"]))),
     ]
     facts_html = "\n".join(f"<tr><th>{html.escape(k)}</th><td>{html.escape(v)}</td></tr>" for k, v in facts)

@@ -149,3 +149,31 @@ def test_cut_skip_empty_says_how_many_tiles_it_left_out(tmp_path):
     r = run("solve", tmp_path / "t", "-o", tmp_path / "m.tif")
     assert r.exit_code == 0, r.output
     assert "grid inferred (" in r.output
+
+
+def _hubble_folder(tmp_path):
+    """96 tiles of 16 px from the dark, noisy sky of scikit-image's
+    ``hubble_deep_field`` (NASA, public domain): little for a seam to go on."""
+    from stitch.puzzles import cut_raster
+
+    src = write_raster(tmp_path / "src.tif", skimage_image("hubble_deep_field")[:, 600:728, 0:192])
+    cut_raster(src, tmp_path / "t", 16, shuffle=True, seed=3, key_path=tmp_path / "k.csv")
+    return tmp_path / "t"
+
+
+def test_a_doubtful_run_says_so_and_can_fail_a_script(tmp_path):
+    folder = _hubble_folder(tmp_path)
+    r = run("solve", folder, "-o", tmp_path / "m.tif")
+    assert r.exit_code == 0, r.output
+    assert "verdict: doubtful:" in r.output and "do not use it without checking it" in r.output
+    r = run("solve", folder, "-o", tmp_path / "m.tif", "--overwrite", "--fail-if-doubtful")
+    assert r.exit_code == 3, r.output
+    assert (tmp_path / "m.tif").is_file()  # the outputs are still written
+    summary = json.loads((tmp_path / "m_report" / "summary.json").read_text())
+    assert summary["verdict"]["level"] == "doubtful" and summary["verdict"]["confident_tiles"] < 0.5
+
+
+def test_a_good_run_passes_fail_if_doubtful(tmp_path, tiles_dir):
+    r = run("solve", tiles_dir, "-o", tmp_path / "m.tif", "--fail-if-doubtful")
+    assert r.exit_code == 0, r.output
+    assert "verdict: good:" in r.output

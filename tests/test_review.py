@@ -137,3 +137,18 @@ def test_inspect_blank_heavy_and_duplicates(tmp_path):
     assert len(found.blank) == 5 and found.duplicates == (("t05.tif", "t06.tif"),)
     all_blank = inspect_tiles(_folder(tmp_path / "b", [np.zeros_like(dem)] * 4))
     assert not all_blank.ok and "blank" in all_blank.problems[0]
+
+
+def test_tile_and_side_confidence_share_one_scale(tmp_path, tiles_dir):
+    """A tile's confidence is the mean of the seam values on its sides, as
+    written to tiles.geojson (seam_top ... seam_left)."""
+    from stitch.pipeline import SolveOptions, solve
+
+    result = solve(tiles_dir, tmp_path / "m.tif", options=SolveOptions(seed=5))
+    p = result.placement
+    for i in np.flatnonzero(p.placed):
+        assert p.confidence[i] == pytest.approx(np.nanmean(result.side_scores[i]), abs=1e-9)
+    features = json.loads(result.outputs["report_footprints"].read_text())["features"]
+    props = features[0]["properties"]
+    sides = [props[k] for k in ("seam_top", "seam_right", "seam_bottom", "seam_left") if props[k] is not None]
+    assert props["confidence"] == pytest.approx(np.mean(sides), abs=1e-3)
