@@ -21,6 +21,10 @@ tournament selection, same fitness) gets the same time as greedy + evolution.
     python bench/solve.py             # open images, 1,000 tiles, 10,000 tiles
     python bench/solve.py --quick     # open images upright only
     python bench/solve.py --landscape-ranking   # why the landscape is resampled
+    python bench/solve.py --skip-large --infer-grid   # grid inferred, as users run it
+
+Without ``--infer-grid`` the search is handed the true grid shape: that
+measures placement alone, not what a user who does not know the grid gets.
 """
 
 import argparse
@@ -126,7 +130,7 @@ def _plain_ga(table, shape, orients, seconds, rng):
     return make(*best)
 
 
-def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None, tile=TILE):
+def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None, tile=TILE, infer=False):
     edges, key = _puzzle(img, rows, cols, tile, turns, rng)
     orients = allowed_orientations(90, False) if turns else (0,)
     t0 = time.perf_counter()
@@ -139,14 +143,18 @@ def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None, tile=T
             grid = _plain_ga(table, (rows, cols), orients, out["greedy + evolution"][3] - t_seams, rng)
         else:
             strategy = "greedy" if method == "greedy" else "evolution"
-            res = search_placement(table, shape=(rows, cols), orientations=orients, rng=1,
-                                   settings=SearchSettings(strategy=strategy, time_limit=time_limit))
+            res = search_placement(table, shape=None if infer else (rows, cols), orientations=orients, rng=1,
+                                   holes=infer, settings=SearchSettings(strategy=strategy, time_limit=time_limit))
             grid = (res.tiles, res.orientations)
+            found = _placement(grid, key.names, turns).shape
         dt = time.perf_counter() - t0 + t_seams
         s = score_placement(_placement(grid, key.names, turns), key)
         out[method] = (s.direct, s.neighbor, s.perfect, dt)
-        print(f"| {name} | {rows}x{cols} | {'quarter' if turns else 'upright'} | {table.measure} | {method} | {s.direct:.3f} | "
-              f"{s.neighbor:.3f} | {'yes' if s.perfect else 'no'} | {dt:.1f} |", flush=True)
+        shape = f"{rows}x{cols}"
+        if infer and method != "plain GA":
+            shape += f" (found {found[0]}x{found[1]})"
+        print(f"| {name} | {shape} | {'quarter' if turns else 'upright'} | {table.measure} | {method} | "
+              f"{s.direct:.3f} | {s.neighbor:.3f} | {'yes' if s.perfect else 'no'} | {dt:.1f} |", flush=True)
     return out
 
 
@@ -175,6 +183,9 @@ def main():
     ap.add_argument("--skip-large", action="store_true")
     ap.add_argument("--time-limit", type=float, default=15.0,
                     help="seconds for the evolutionary stage on the open-image puzzles (default 15)")
+    ap.add_argument("--infer-grid", action="store_true",
+                    help="infer the grid as users' runs do (holes allowed) instead of giving the true shape; "
+                         "the plain GA still gets the true shape")
     ap.add_argument("--landscape-ranking", action="store_true",
                     help="only print how often MGC ranks the true neighbour first on the landscape")
     args = ap.parse_args()
@@ -194,7 +205,8 @@ def main():
             rows, cols = min(18, img.shape[1] // TILE), min(24, img.shape[2] // TILE)
             img = _centre(img, rows, cols, TILE)
             for turns in ((False,) if args.quick else (False, True)):
-                res = run_case(name, img, rows, cols, turns, rng, methods, time_limit=args.time_limit)
+                res = run_case(name, img, rows, cols, turns, rng, methods, time_limit=args.time_limit,
+                               infer=args.infer_grid)
                 for m, v in res.items():
                     summary.setdefault((turns, m), []).append(v)
         for (turns, m), vals in summary.items():
