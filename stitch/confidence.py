@@ -18,7 +18,14 @@ import numpy as np
 from .layout import seam_pairs
 from .orientation import FACE, STEPS
 
-__all__ = ["Verdict", "run_verdict", "seam_confidence", "side_confidence", "tile_confidence"]
+__all__ = ["Verdict", "look_alikes", "review_labels", "run_verdict", "seam_confidence", "side_confidence",
+           "tile_confidence"]
+
+#: Two tiles look alike when the distance between their edge strips (all four
+#: sides, bands scaled as the seam measures see them) is below this share of
+#: the set's median distance between tiles (our choice, no source): one
+#: stretch of water, snow or crop field against another.
+LOOK_ALIKE_TOLERANCE = 0.25
 
 #: Verdict thresholds (our choice, no source): a run is ``"good"`` when at
 #: least this share of its placed tiles is confident and the grid is sure...
@@ -108,6 +115,58 @@ def tile_confidence(placement, table, agreement=None):
     count = np.bincount(tiles, minlength=n)
     np.divide(total, count, out=conf, where=count > 0)
     return conf
+
+
+def look_alikes(edges, among):
+    """How many other tiles of ``among`` look like each one (near-identical
+    edges, see :data:`LOOK_ALIKE_TOLERANCE`).
+
+    Parameters
+    ----------
+    edges : stitch.tiles.EdgeStrips
+    among : ndarray of bool, shape (n_tiles,)
+        Tiles to compare (e.g. the flagged ones).
+
+    Returns
+    -------
+    ndarray of int, shape (n_tiles,)
+        0 outside ``among``.
+    """
+    from .seams import normalize_strips
+
+    among = np.asarray(among, bool)
+    out = np.zeros(len(among), np.int64)
+    idx = np.flatnonzero(among)
+    if len(idx) < 2:
+        return out
+    sides = normalize_strips(edges.sides, edges.valid)
+    x = np.concatenate([s.reshape(len(s), -1) for s in sides], axis=1)
+    sq = np.einsum("ij,ij->i", x, x, dtype=np.float64)
+    # The set's typical distance, from a fixed sample of pairs (deterministic).
+    sample = np.linspace(0, len(x) - 1, min(len(x), 256)).astype(np.int64)
+    d_s = sq[sample, None] + sq[None, sample] - 2.0 * (x[sample] @ x[sample].T)
+    off = ~np.eye(len(sample), dtype=bool)
+    typical = float(np.sqrt(np.median(np.maximum(d_s[off], 0.0)))) if off.any() else 0.0
+    limit = (LOOK_ALIKE_TOLERANCE * typical) ** 2
+    xa = x[idx]
+    for r0 in range(0, len(idx), 2048):
+        r1 = min(len(idx), r0 + 2048)
+        d = sq[idx[r0:r1], None] + sq[None, idx] - 2.0 * (xa[r0:r1] @ xa.T)
+        near = d < limit
+        near[np.arange(r1 - r0), np.arange(r0, r1)] = False
+        out[idx[r0:r1]] = near.sum(axis=1)
+    return out
+
+
+def review_labels(confidence, placed, threshold, look_alike_counts):
+    """``""`` for confident tiles; for the others ``"interchangeable"`` when
+    other flagged tiles look just like it (any of them would do in its cell),
+    else ``"doubtful"``."""
+    labels = np.full(len(confidence), "", dtype=object)
+    low = placed & (np.nan_to_num(confidence, nan=0.0) < threshold)
+    labels[low] = "doubtful"
+    labels[low & (look_alike_counts > 0)] = "interchangeable"
+    return labels
 
 
 @dataclass(frozen=True)

@@ -213,15 +213,17 @@ def seam_pairs(placement):
     return np.concatenate(out).astype(np.int64) if out else np.empty((0, 3), np.int64)
 
 
-def format_placement_csv(placement):
+def format_placement_csv(placement, review=None):
     """Text of ``placement.csv`` (header ``tile,row,col,rotation,mirrored,confidence``).
 
     Tiles are listed in reading order of their cells; unplaced tiles last with
-    empty row and col. Rotation is in degrees clockwise.
+    empty row and col. Rotation is in degrees clockwise. With ``review`` (one
+    label per tile: ``""``, ``"interchangeable"`` or ``"doubtful"``) a last
+    column ``review`` holds it.
     """
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(CSV_HEADER)
+    w.writerow(CSV_HEADER + (("review",) if review is not None else ()))
     order = np.lexsort((placement.cols, placement.rows, ~placement.placed))
     for i in order:
         placed = placement.rows[i] >= 0
@@ -233,13 +235,13 @@ def format_placement_csv(placement):
             int(placement.rotations[i]) * 90,
             int(placement.mirrored[i]),
             "" if np.isnan(conf) else f"{conf:.4f}",
-        ])
+        ] + ([review[i]] if review is not None else []))
     return buf.getvalue()
 
 
-def write_placement_csv(placement, path, *, overwrite=False):
+def write_placement_csv(placement, path, *, overwrite=False, review=None):
     """Write :func:`format_placement_csv` to ``path`` atomically."""
-    return write_text_atomic(path, format_placement_csv(placement), overwrite=overwrite)
+    return write_text_atomic(path, format_placement_csv(placement, review), overwrite=overwrite)
 
 
 def read_placement_csv(path):

@@ -32,7 +32,7 @@ from .georef import (
 from .layout import Placement, allowed_orientations, normalize_frame
 from .mosaic import write_mosaic
 from .report import check_report, report_paths, write_report
-from .confidence import run_verdict, side_confidence, tile_confidence
+from .confidence import look_alikes, review_labels, run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
 from .tiles import MAX_TILE_PIXELS, read_tileset
@@ -139,6 +139,9 @@ class SolveResult:
         Seam measure that scored the seams (the one ``"auto"`` chose).
     verdict : stitch.confidence.Verdict or None
         What the run as a whole is worth.
+    review : ndarray of str or None
+        Per tile: ``""`` (confident), ``"interchangeable"`` (flagged, but other
+        flagged tiles look just like it) or ``"doubtful"``.
     """
 
     placement: Placement
@@ -154,6 +157,7 @@ class SolveResult:
     pinned: frozenset = frozenset()
     measure: str = ""
     verdict: object = None
+    review: np.ndarray | None = None
 
     @property
     def flagged(self):
@@ -327,6 +331,9 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     sides[tileset.blank] = np.where(np.isnan(sides[tileset.blank]), np.nan, 0.0)  # blank tiles: no evidence
     verdict = run_verdict(placement, table, threshold=options.confidence_threshold,
                           grid_given=options.grid is not None, shape_evidence=search.shape_evidence)
+    low = placement.placed & (np.nan_to_num(placement.confidence, nan=0.0) < options.confidence_threshold)
+    review = review_labels(placement.confidence, placement.placed, options.confidence_threshold,
+                           look_alikes(tileset.edges, low))
     timings["place"] = time.perf_counter() - t0
 
     georef, fit = _georeference(options, placement, tileset)
@@ -363,7 +370,7 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         timings["write"] = time.perf_counter() - t0
         outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
         result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit,
-                             sides, frozenset(pins.tiles), table.measure, verdict)
+                             sides, frozenset(pins.tiles), table.measure, verdict, review)
         write_report(result, report_dir, overwrite=overwrite)
     except BaseException:
         for p in planned:

@@ -106,6 +106,8 @@ def summary_dict(result):
         "georeference": {"source": g.source, "crs": g.crs.to_string() if g.crs else None,
                          "transform": list(g.transform)[:6], "control": _control(result.control)},
         "flagged_tiles": result.flagged,
+        "interchangeable_tiles": ([p.names[i] for i in np.flatnonzero(result.review == "interchangeable")]
+                                  if result.review is not None else []),
         "outputs": result.outputs,
         "timings_s": {k: round(v, 4) for k, v in result.timings.items()},
         "warnings": list(result.warnings),
@@ -137,7 +139,8 @@ def write_report(result, folder, *, overwrite=False):
     check_report(folder, overwrite=overwrite)
     folder.mkdir(exist_ok=True)
     summary = summary_dict(result)
-    write_placement_csv(result.placement, paths["placement"], overwrite=overwrite)
+    write_placement_csv(result.placement, paths["placement"], overwrite=overwrite,
+                        review=None if result.review is None else list(result.review))
     write_text_atomic(paths["summary"], json.dumps(summary, indent=2) + "\n", overwrite=overwrite)
     write_text_atomic(paths["footprints"], tiles_geojson(result), overwrite=overwrite)
     preview = preview_png(result)
@@ -157,8 +160,11 @@ def flagged_rows(result):
     for name in result.flagged:
         i = p.names.index(name)
         why = ["blank tile: no evidence"] if ts.blank[i] else []
+        if result.review is not None and result.review[i] == "interchangeable":
+            why.append("interchangeable: other flagged tiles look just like it, any would do here")
         sides = result.side_scores[i] if result.side_scores is not None else np.full(4, np.nan)
-        weak = [label for label, v in zip(("top", "right", "bottom", "left"), sides) if np.isfinite(v) and v < 0.1]
+        weak = [label for label, v in zip(("top", "right", "bottom", "left"), sides)
+                if np.isfinite(v) and v < threshold / 2]
         if weak:
             why.append("weak seams: " + ", ".join(weak))
         why.append(f"confidence below {threshold}")

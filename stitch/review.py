@@ -89,6 +89,7 @@ def tiles_geojson(result, *, native=False):
                 "seam_bottom": _num(sides[2]), "seam_left": _num(sides[3]),
                 "pinned": bool(i in result.pinned), "blank": bool(ts.blank[i]),
                 "low_confidence": conf is None or conf < threshold,
+                "review": (str(result.review[i]) or None) if result.review is not None else None,
             },
         })
     doc = {"type": "FeatureCollection", "features": features}

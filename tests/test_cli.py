@@ -171,6 +171,10 @@ def test_a_doubtful_run_says_so_and_can_fail_a_script(tmp_path):
     assert (tmp_path / "m.tif").is_file()  # the outputs are still written
     summary = json.loads((tmp_path / "m_report" / "summary.json").read_text())
     assert summary["verdict"]["level"] == "doubtful" and summary["verdict"]["confident_tiles"] < 0.5
+    # Star fields are no look-alikes: the flagged tiles are doubtful, not interchangeable.
+    csv_text = (tmp_path / "m_report" / "placement.csv").read_text()
+    assert csv_text.splitlines()[0].endswith(",review") and "doubtful" in csv_text
+    assert "interchangeable" not in csv_text
 
 
 def test_a_good_run_passes_fail_if_doubtful(tmp_path, tiles_dir):

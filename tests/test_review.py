@@ -152,3 +152,30 @@ def test_tile_and_side_confidence_share_one_scale(tmp_path, tiles_dir):
     props = features[0]["properties"]
     sides = [props[k] for k in ("seam_top", "seam_right", "seam_bottom", "seam_left") if props[k] is not None]
     assert props["confidence"] == pytest.approx(np.mean(sides), abs=1e-3)
+
+
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_flagged_tiles_of_uniform_sky_are_told_apart_as_interchangeable(tmp_path):
+    """48 tiles of 32 px from the top of scikit-image's ``camera`` (CC0): the
+    few tiles flagged lie in the even sky, where any of them would do; the
+    review kit labels them interchangeable (placement.csv, tiles.geojson,
+    summary.json), not doubtful."""
+    import csv
+
+    from stitch.pipeline import SolveOptions, solve
+    from stitch.puzzles import cut_raster, score_placement
+
+    src = write_raster(tmp_path / "src.tif", skimage_image("camera")[:, 0:192, 0:256])
+    cut = cut_raster(src, tmp_path / "t", 32, shuffle=True, seed=3, key_path=tmp_path / "k.csv")
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=0))
+    assert score_placement(result.placement, cut.key).perfect
+    assert result.flagged
+    with open(result.outputs["report_placement"], newline="") as f:
+        rows = {r["tile"]: r for r in csv.DictReader(f)}
+    assert {rows[name]["review"] for name in result.flagged} == {"interchangeable"}
+    assert all(r["review"] == "" for name, r in rows.items() if name not in result.flagged)
+    features = json.loads(result.outputs["report_footprints"].read_text())["features"]
+    labels = {f["properties"]["tile"]: f["properties"]["review"] for f in features}
+    assert {labels[name] for name in result.flagged} == {"interchangeable"}
+    summary = json.loads(result.outputs["report_summary"].read_text())
+    assert sorted(summary["interchangeable_tiles"]) == sorted(result.flagged)
