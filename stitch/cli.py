@@ -299,6 +299,7 @@ def cut(
     tile_format: Annotated[str, typer.Option("--format", help="Tile format: tif or png.")] = "tif",
     key: Annotated[Optional[Path], typer.Option(help="Answer key CSV (default: OUTPUT/answer_key.csv).")] = None,
     skip_empty: Annotated[bool, typer.Option("--skip-empty", help="Do not write tiles that hold only nodata, as tilers skip them.")] = False,
+    partial: Annotated[bool, typer.Option("--partial", help="Keep the raster's remainder as narrower and shorter tiles in the last column and row.")] = False,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,
@@ -312,7 +313,7 @@ def cut(
     with _errors(verbose, quiet):
         result = cut_raster(raster, output, parse_tile_size(tile_size), shuffle=shuffle, strip_georef=strip_georef,
                             keep_georef=keep_georef, rotate=rotate, mirror=mirror, fmt=tile_format, key_path=key,
-                            seed=seed, overwrite=overwrite, skip_empty=skip_empty)
+                            seed=seed, overwrite=overwrite, skip_empty=skip_empty, partial=partial)
     if not quiet:
         k = result.key
         skipped = k.shape[0] * k.shape[1] - len(k.names)

@@ -25,7 +25,7 @@ from .files import atomic_path, write_text_atomic
 from .georef import world_file_path, world_file_text
 from .orientation import orient
 
-__all__ = ["CAUTION", "choose_nodata", "hole_marking", "mosaic_profile", "write_mosaic"]
+__all__ = ["CAUTION", "choose_nodata", "hole_marking", "mosaic_profile", "mosaic_size", "write_mosaic"]
 
 log = logging.getLogger(__name__)
 
@@ -67,14 +67,38 @@ def hole_marking(dtype, tile_nodata, has_holes):
     return "internal mask band" if nodata is None else f"nodata {nodata}"
 
 
+def mosaic_size(tileset, placement):
+    """``(width, height)`` of the mosaic in pixels.
+
+    The grid of full-size cells, except that a last column (row) holding
+    only partial edge tiles is as wide (high) as they are, so the mosaic of
+    a tiled export has exactly the source raster's size.
+    """
+    rows, cols = placement.shape
+    width, height = cols * tileset.width, rows * tileset.height
+    if tileset.sizes is None or not placement.placed.any():
+        return width, height
+    p = np.flatnonzero(placement.placed)
+    w, h = tileset.sizes[p, 0], tileset.sizes[p, 1]
+    odd = placement.rotations[p] % 2 == 1
+    w, h = np.where(odd, h, w), np.where(odd, w, h)  # as they sit in the mosaic
+    last_col = placement.cols[p] == cols - 1
+    last_row = placement.rows[p] == rows - 1
+    if last_col.any():
+        width = (cols - 1) * tileset.width + int(w[last_col].max())
+    if last_row.any():
+        height = (rows - 1) * tileset.height + int(h[last_row].max())
+    return width, height
+
+
 def mosaic_profile(tileset, placement, georef, nodata):
     """Creation options of the output GeoTIFF."""
-    rows, cols = placement.shape
     dt = np.dtype(tileset.dtype)
+    width, height = mosaic_size(tileset, placement)
     profile = {
         "driver": "GTiff",
-        "width": cols * tileset.width,
-        "height": rows * tileset.height,
+        "width": width,
+        "height": height,
         "count": tileset.count,
         "dtype": tileset.dtype,
         "crs": georef.crs,

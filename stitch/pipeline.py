@@ -30,7 +30,7 @@ from .georef import (
     world_file_path,
 )
 from .layout import Placement, allowed_orientations, normalize_frame
-from .mosaic import write_mosaic
+from .mosaic import mosaic_size, write_mosaic
 from .report import check_report, report_paths, write_report
 from .confidence import look_alikes, review_labels, run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
@@ -230,6 +230,11 @@ def place_tiles(tileset, options=None, *, progress=None):
         r, c = options.grid
         raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
+    if tileset.partial.any() and (options.rotations or options.mirrored):
+        raise OptionError(
+            f"{int(tileset.partial.sum())} partial edge tile(s) in {str(tileset.folder)!r}: turned or mirrored "
+            "tiles with partial edges are not supported yet; solve them upright (--rotations 0, no --mirrored)"
+        )
     table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates,
                         blank=tileset.blank, progress=progress)
     pins = _pins(tileset, options)
@@ -262,7 +267,7 @@ def _georeference(options, placement, tileset):
             log.warning("ground control overrides %s", anchored.source)
         return g, fit
     if spec.bounds is not None:
-        g = from_bounds(spec.bounds, placement.shape[1] * tileset.width, placement.shape[0] * tileset.height, spec.crs)
+        g = from_bounds(spec.bounds, *mosaic_size(tileset, placement), spec.crs)
     elif spec.origin is not None:
         g = from_origin(spec.origin, spec.pixel_size, spec.crs)
     else:

@@ -102,7 +102,8 @@ def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
 
 
 def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False, keep_georef=0,
-               rotate=0, mirror=False, fmt="tif", key_path=None, seed=0, overwrite=False, skip_empty=False):
+               rotate=0, mirror=False, fmt="tif", key_path=None, seed=0, overwrite=False, skip_empty=False,
+               partial=False):
     """Cut a raster into whole tiles and write them with an answer key.
 
     Parameters
@@ -129,6 +130,10 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
     skip_empty : bool
         Do not write tiles that hold only nodata (as tilers skip them); the
         answer key then lists only the tiles written, on the full grid.
+    partial : bool
+        Keep the raster's remainder as narrower tiles in the last column and
+        shorter ones in the last row, as tilers write it (by default it is
+        dropped).
 
     Returns
     -------
@@ -155,10 +160,13 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         rows, cols = src.height // th, src.width // tw
         if rows * cols == 0:
             raise OptionError(f"--tile-size {tw}x{th} is larger than {str(raster)!r} ({src.width}x{src.height})")
-        if src.height % th or src.width % tw:
+        if partial:
+            rows, cols = -(-src.height // th), -(-src.width // tw)
+        elif src.height % th or src.width % tw:
             log.info("dropping the last %d rows and %d columns that do not fill a tile", src.height % th, src.width % tw)
         n = rows * cols
-        windows = [Window((k % cols) * tw, (k // cols) * th, tw, th) for k in range(n)]
+        windows = [Window((k % cols) * tw, (k // cols) * th, min(tw, src.width - (k % cols) * tw),
+                          min(th, src.height - (k // cols) * th)) for k in range(n)]
         # GDAL's dataset mask: 0 where a pixel is nodata in every band.
         empty = (np.array([not src.dataset_mask(window=w).any() for w in windows], bool) if skip_empty
                  else np.zeros(n, bool))

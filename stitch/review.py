@@ -21,6 +21,8 @@ from rasterio.enums import Resampling
 from shapely.geometry import Polygon, mapping
 from shapely.geometry.polygon import orient as orient_ring
 
+from .mosaic import mosaic_size
+
 __all__ = ["convergence_png", "footprints", "index_html", "preview_png", "tiles_geojson"]
 
 VERMILLION = (213, 94, 0)
@@ -34,12 +36,19 @@ WHITE = (255, 255, 255)
 PREVIEW_MAX = 2000
 
 
-def footprints(placement, transform, width, height):
-    """Shapely polygons of every placed tile in the mosaic's coordinates (index -> polygon)."""
+def footprints(placement, transform, width, height, sizes=None):
+    """Shapely polygons of every placed tile in the mosaic's coordinates (index -> polygon).
+
+    ``sizes`` (per tile file, see :attr:`stitch.tiles.TileSet.sizes`) gives
+    partial edge tiles their own extent inside their cell.
+    """
     out = {}
     for i in np.flatnonzero(placement.placed):
         c0, r0 = placement.cols[i] * width, placement.rows[i] * height
-        corners = [(c0, r0), (c0, r0 + height), (c0 + width, r0 + height), (c0 + width, r0)]
+        w, h = (width, height) if sizes is None else (int(sizes[i, 0]), int(sizes[i, 1]))
+        if placement.rotations[i] % 2:
+            w, h = h, w
+        corners = [(c0, r0), (c0, r0 + h), (c0 + w, r0 + h), (c0 + w, r0)]
         out[int(i)] = Polygon([transform @ c for c in corners])
     return out
 
@@ -64,7 +73,7 @@ def tiles_geojson(result, *, native=False):
     from rasterio.warp import transform as warp
 
     p, ts, g = result.placement, result.tileset, result.georeference
-    shapes = footprints(p, g.transform, ts.width, ts.height)
+    shapes = footprints(p, g.transform, ts.width, ts.height, ts.sizes)
     threshold = result.options.confidence_threshold
     features = []
     for i, poly in shapes.items():
@@ -138,7 +147,7 @@ def preview_png(result):
     """PNG bytes: the mosaic at most :data:`PREVIEW_MAX` px, tile grid, marks, legend."""
     p, ts = result.placement, result.tileset
     rows, cols = p.shape
-    full_w, full_h = cols * ts.width, rows * ts.height
+    full_w, full_h = mosaic_size(ts, p)
     f = min(1.0, PREVIEW_MAX / max(full_w, full_h))
     w, h = max(1, int(round(full_w * f))), max(1, int(round(full_h * f)))
     with rasterio.open(result.outputs["mosaic"]) as src:

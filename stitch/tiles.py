@@ -40,6 +40,7 @@ __all__ = [
     "TileSet",
     "find_tiles",
     "is_own_output",
+    "partial_sizes",
     "read_tile",
     "read_tileset",
     "side_strips",
@@ -159,6 +160,12 @@ class TileSet:
         True for tiles that are constant or entirely nodata.
     colorinterp : tuple
         Band colour interpretation of the first tile, copied to the mosaic.
+    sizes : ndarray of int, shape (n_tiles, 2), or None
+        Width and height of each tile file when some are partial edge tiles
+        (narrower ones for the last column, shorter ones for the last row, at
+        most one corner tile); None when every tile is ``width x height``.
+        Partial tiles' edge strips are cut as if the tile were full size,
+        with the missing part nodata (see :func:`partial_sizes`).
     """
 
     folder: Path
@@ -172,6 +179,20 @@ class TileSet:
     edges: EdgeStrips
     blank: np.ndarray
     colorinterp: tuple = ()
+    sizes: np.ndarray | None = None
+
+    @property
+    def partial(self):
+        """Boolean mask of partial edge tiles (all False without them)."""
+        if self.sizes is None:
+            return np.zeros(len(self.names), bool)
+        return (self.sizes[:, 0] < self.width) | (self.sizes[:, 1] < self.height)
+
+    def size_of(self, index):
+        """``(width, height)`` of tile ``index``'s file."""
+        if self.sizes is None:
+            return self.width, self.height
+        return int(self.sizes[index, 0]), int(self.sizes[index, 1])
 
     def __len__(self):
         return len(self.names)
@@ -390,7 +411,8 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
     counts = {}
     for s in shapes:
         counts[s] = counts.get(s, 0) + 1
-    if len(counts) > 1:
+    sizes = partial_sizes(shapes) if len(counts) > 1 else None
+    if len(counts) > 1 and sizes is None:
         common = max(counts, key=counts.get)
         odd = [(n, s) for n, s in zip(names, shapes) if s != common]
         listed = "; ".join(f"{n} ({_describe(s)})" for n, s in odd[:5])
@@ -400,6 +422,10 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
             f"{listed}{more}; move them out of {str(folder)!r}"
         )
     width, height, count, dtype = shapes[0]
+    if sizes is not None:
+        width, height = int(sizes[:, 0].max()), int(sizes[:, 1].max())
+        log.info("%d partial edge tile(s) beside %dx%d ones",
+                 int(((sizes[:, 0] < width) | (sizes[:, 1] < height)).sum()), width, height)
     if width < 2 or height < 2:
         raise TileSetError(f"tiles in {str(folder)!r} are {width}x{height} px; at least 2x2 is needed")
     nodata = next((v for v in nodatas if v is not None), None)
@@ -426,6 +452,15 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         if pixels.dtype.kind == "f":
             mask |= ~np.isfinite(pixels).all(axis=0)
         good = pixels[:, ~mask]
+        if pixels.shape[1:] != (height, width):
+            # A partial edge tile: the raster ends inside its cell, so its
+            # strips are cut from the full cell with the rest nodata (its
+            # outer side then faces only the border, by the footprint rule).
+            full = np.zeros((pixels.shape[0], height, width), strip_dtype)
+            full_mask = np.ones((height, width), bool)
+            full[:, :pixels.shape[1], :pixels.shape[2]] = pixels
+            full_mask[:pixels.shape[1], :pixels.shape[2]] = mask
+            pixels, mask = full, full_mask
         blank[i] = good.size == 0 or bool(np.all(good.max(axis=1) == good.min(axis=1)))
         for s, (strip, vstrip) in enumerate(zip(side_strips(pixels), side_strips(~mask[None]))):
             sides[s][i] = strip
@@ -447,4 +482,49 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         edges=EdgeStrips(sides=tuple(sides), valid=tuple(valid)),
         blank=blank,
         colorinterp=colorinterp,
+        sizes=sizes,
     )
+
+
+def partial_sizes(shapes):
+    """Tile sizes when a folder is a full-size set plus partial edge tiles, else None.
+
+    Tiled exports end in a narrower right column and a shorter bottom row
+    when the raster's size is no multiple of the tile size: tiles of one full
+    size ``W x H``, narrower ones ``w x H`` (one width), shorter ones
+    ``W x h`` (one height) and at most one corner tile ``w x h``, all with
+    the same bands and data type.
+
+    Parameters
+    ----------
+    shapes : list of (width, height, count, dtype)
+
+    Returns
+    -------
+    ndarray of int, shape (n, 2), or None
+
+    Examples
+    --------
+    >>> partial_sizes([(64, 64, 3, "uint8"), (20, 64, 3, "uint8"), (64, 9, 3, "uint8"), (20, 9, 3, "uint8")])
+    array([[64, 64],
+           [20, 64],
+           [64,  9],
+           [20,  9]])
+    >>> partial_sizes([(64, 64, 3, "uint8"), (32, 32, 3, "uint8")]) is None
+    True
+    """
+    if len({(c, d) for _, _, c, d in shapes}) != 1:
+        return None
+    sizes = np.array([(w, h) for w, h, _, _ in shapes], np.int64)
+    big_w, big_h = sizes[:, 0].max(), sizes[:, 1].max()
+    narrow_w = {int(w) for w, h in sizes if w < big_w}
+    short_h = {int(h) for w, h in sizes if h < big_h}
+    full = (sizes[:, 0] == big_w) & (sizes[:, 1] == big_h)
+    corner = (sizes[:, 0] < big_w) & (sizes[:, 1] < big_h)
+    narrow = (sizes[:, 0] < big_w) & (sizes[:, 1] == big_h)
+    short = (sizes[:, 0] == big_w) & (sizes[:, 1] < big_h)
+    if not full.any() or len(narrow_w) > 1 or len(short_h) > 1 or corner.sum() > 1:
+        return None
+    if corner.any() and not (narrow.any() and short.any()):
+        return None  # a corner tile comes with a partial column and a partial row
+    return sizes

