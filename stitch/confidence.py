@@ -90,8 +90,9 @@ def side_confidence(placement, table, agreement=None):
 
 
 def tile_confidence(placement, table, agreement=None):
-    """Per-tile confidence in [0, 1]: the mean of its seams'
-    :func:`seam_confidence`; a tile with no placed neighbour scores 0.
+    """Per-tile confidence in [0, 1]: the mean of its sides'
+    :func:`side_confidence`, i.e. of its seams; a tile with no placed
+    neighbour scores 0.
 
     Parameters
     ----------
@@ -103,17 +104,10 @@ def tile_confidence(placement, table, agreement=None):
     -------
     ndarray of float, shape (n_tiles,)
     """
-    n = len(placement.names)
-    pairs = seam_pairs(placement)
-    conf = np.zeros(n)
-    if len(pairs) == 0:
-        return conf
-    sa, sb, flip = pairs.T
-    seam_conf = seam_confidence(table, sa, sb, flip, agreement)
-    tiles = np.concatenate([sa // 4, sb // 4])
-    total = np.bincount(tiles, weights=np.concatenate([seam_conf, seam_conf]), minlength=n)
-    count = np.bincount(tiles, minlength=n)
-    np.divide(total, count, out=conf, where=count > 0)
+    sides = side_confidence(placement, table, agreement)
+    count = np.isfinite(sides).sum(axis=1)
+    conf = np.zeros(len(placement.names))
+    np.divide(np.nansum(sides, axis=1), count, out=conf, where=count > 0)
     return conf
 
 
@@ -158,14 +152,15 @@ def look_alikes(edges, among):
     return out
 
 
-def review_labels(confidence, placed, threshold, look_alike_counts):
-    """``""`` for confident tiles; for the others ``"interchangeable"`` when
-    other flagged tiles look just like it (any of them would do in its cell),
-    else ``"doubtful"``."""
-    labels = np.full(len(confidence), "", dtype=object)
-    low = placed & (np.nan_to_num(confidence, nan=0.0) < threshold)
+def review_labels(placement, edges, threshold):
+    """Per tile: ``""`` when confident; for a placed tile below ``threshold``,
+    ``"interchangeable"`` when other such tiles look just like it
+    (:func:`look_alikes`: any of them would do in its cell), else
+    ``"doubtful"``."""
+    low = placement.placed & (np.nan_to_num(placement.confidence, nan=0.0) < threshold)
+    labels = np.full(len(low), "", dtype=object)
     labels[low] = "doubtful"
-    labels[low & (look_alike_counts > 0)] = "interchangeable"
+    labels[low & (look_alikes(edges, low) > 0)] = "interchangeable"
     return labels
 
 

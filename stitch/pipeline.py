@@ -32,7 +32,7 @@ from .georef import (
 from .layout import Placement, allowed_orientations, normalize_frame
 from .mosaic import mosaic_size, write_mosaic
 from .report import check_report, report_paths, write_report
-from .confidence import look_alikes, review_labels, run_verdict, side_confidence, tile_confidence
+from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
 from .tiles import MAX_TILE_PIXELS, read_tileset
@@ -336,9 +336,7 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     sides[tileset.blank] = np.where(np.isnan(sides[tileset.blank]), np.nan, 0.0)  # blank tiles: no evidence
     verdict = run_verdict(placement, table, threshold=options.confidence_threshold,
                           grid_given=options.grid is not None, shape_evidence=search.shape_evidence)
-    low = placement.placed & (np.nan_to_num(placement.confidence, nan=0.0) < options.confidence_threshold)
-    review = review_labels(placement.confidence, placement.placed, options.confidence_threshold,
-                           look_alikes(tileset.edges, low))
+    review = review_labels(placement, tileset.edges, options.confidence_threshold)
     timings["place"] = time.perf_counter() - t0
 
     georef, fit = _georeference(options, placement, tileset)

@@ -83,6 +83,7 @@ def summary_dict(result):
     """Everything a reviewer needs to know about a run, as plain data."""
     p = result.placement
     g = result.georeference
+    holes = int(p.shape[0] * p.shape[1] - p.placed.sum())
     return _jsonable({
         "caution": CAUTION,
         "inputs": {"tiles_dir": str(result.tileset.folder), "tiles": len(result.tileset),
@@ -95,9 +96,7 @@ def summary_dict(result):
         "grid_source": "given" if result.options.grid else "inferred",
         "grid_inference": result.search.shape_evidence,
         "verdict": result.verdict.as_dict() if result.verdict is not None else None,
-        "holes": {"cells": int(p.shape[0] * p.shape[1] - p.placed.sum()),
-                  "marked_by": hole_marking(result.tileset.dtype, result.tileset.nodata,
-                                            bool(p.shape[0] * p.shape[1] > p.placed.sum()))},
+        "holes": {"cells": holes, "marked_by": hole_marking(result.tileset.dtype, result.tileset.nodata, holes > 0)},
         "seam_measure": result.measure,
         "shape_scores": result.search.shape_scores,
         "search": {"strategy": result.search.strategy, "generations": result.search.generations,

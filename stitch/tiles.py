@@ -188,12 +188,6 @@ class TileSet:
             return np.zeros(len(self.names), bool)
         return (self.sizes[:, 0] < self.width) | (self.sizes[:, 1] < self.height)
 
-    def size_of(self, index):
-        """``(width, height)`` of tile ``index``'s file."""
-        if self.sizes is None:
-            return self.width, self.height
-        return int(self.sizes[index, 0]), int(self.sizes[index, 1])
-
     def __len__(self):
         return len(self.names)
 

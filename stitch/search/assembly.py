@@ -146,8 +146,9 @@ def _alignment(members, si, sj, i, j, slot_a, slot_b, flip):
 def trusted_segments(best_buddies, orientations, confidence=None):
     """Rigid segments joined by :func:`loop_seams`, largest first.
 
-    Seams are taken most confident first (``confidence`` per seam, in the
-    order :func:`loop_seams` returns them; by default in that order). A tile
+    Seams are taken most confident first: ``confidence``, when given, is
+    called with the ``(n_seams, 3)`` array of :func:`loop_seams` and returns
+    one value per seam (by default they are taken in that array's order). A tile
     on its own joins a segment by one seam; two segments of two or more
     tiles join only when at least two seams between them agree on how they
     lie (one wrong loop in uniform ground then cannot drag a segment off),
@@ -163,7 +164,7 @@ def trusted_segments(best_buddies, orientations, confidence=None):
     seams = loop_seams(best_buddies, orientations)
     if len(seams) == 0:
         return []
-    order = np.arange(len(seams)) if confidence is None else np.argsort(-np.asarray(confidence), kind="stable")
+    order = np.arange(len(seams)) if confidence is None else np.argsort(-np.asarray(confidence(seams)), kind="stable")
     seams = [tuple(int(v) for v in seams[q]) for q in order]
     tiles = sorted({s // 4 for seam in seams for s in seam[:2]})
     # tile -> segment id; segment id -> {tile: (row, col, orientation)} and {cell: tile}

@@ -173,32 +173,31 @@ def _explained_holes(problem, grid):
 
 def largest_segment(problem):
     """The largest trusted segment of a problem's seam table, or None."""
-    from .assembly import loop_seams, trusted_segments
+    from .assembly import trusted_segments
 
-    seams = loop_seams(problem.ranking.best_buddies, problem.orientations)
-    if len(seams) == 0:
-        return None
-    conf = problem.table.confidence(seams[:, 0], seams[:, 1], seams[:, 2])
-    segments = trusted_segments(problem.ranking.best_buddies, problem.orientations, conf)
+    segments = trusted_segments(problem.ranking.best_buddies, problem.orientations,
+                                lambda seams: problem.table.confidence(seams[:, 0], seams[:, 1], seams[:, 2]))
     return segments[0] if segments else None
 
 
-def _holey_shapes(n, box, contains, bound, quarter):
+def _holds(frame, box, quarter):
+    """Does a ``frame`` (rows, cols) hold a ``box``, turned a quarter if ``quarter``?"""
+    return (box[0] <= frame[0] and box[1] <= frame[1]) or (quarter and box[1] <= frame[0] and box[0] <= frame[1])
+
+
+def _holey_shapes(n, box, bound, quarter):
     """Grids with more cells than tiles, at most ``bound`` cells, that contain
     ``box``: the :data:`MAX_HOLEY_SHAPES` with the fewest empty cells (then
     the least elongated), and those at most :data:`BOX_SLACK` rows and
     columns larger than the box (the tiles a segment leaves out, such as
     collar tiles along its edge, extend it by a row or two on each side)."""
-    out = []
-    for r in range(2, int(bound) + 1):
-        for c in range(max(2, -(-(n + 1) // r)), int(bound // r) + 1):
-            if contains((r, c)):
-                out.append((r, c))
+    out = [(r, c) for r in range(2, int(bound) + 1) for c in range(max(2, -(-(n + 1) // r)), int(bound // r) + 1)
+           if _holds((r, c), box, quarter)]
     out.sort(key=lambda s: (s[0] * s[1], max(s) / min(s), s))
+    boxes = [box, box[::-1]] if quarter else [box]
 
-    def near(s):
-        boxes = [box, box[::-1]] if quarter else [box]
-        return any(0 <= s[0] - b[0] <= BOX_SLACK and 0 <= s[1] - b[1] <= BOX_SLACK for b in boxes)
+    def near(s):  # at most BOX_SLACK larger than the box, either way round
+        return any(_holds(s, b, False) and _holds((b[0] + BOX_SLACK, b[1] + BOX_SLACK), s, False) for b in boxes)
 
     return out[:MAX_HOLEY_SHAPES] + [s for s in out[MAX_HOLEY_SHAPES:] if near(s)]
 
@@ -226,11 +225,7 @@ def shapes_to_try(problem, shape, seed, kfree, holes, segment=None):
             shapes.append((cols, rows))  # the seed may sit turned; turned back later
     else:
         box = segment.box if segment is not None else (1, 1)
-
-        def contains(s):
-            return (s[0] >= box[0] and s[1] >= box[1]) or (quarter and s[0] >= box[1] and s[1] >= box[0])
-
-        shapes = [s for s in candidate_shapes(n, transposes=True) if contains(s)]
+        shapes = [s for s in candidate_shapes(n, transposes=True) if _holds(s, box, quarter)]
         if holes:
             # A free run can wander off and leave a box far larger than the
             # set: it is only a candidate while at least MIN_FILL of its
@@ -239,12 +234,12 @@ def shapes_to_try(problem, shape, seed, kfree, holes, segment=None):
             # skips the tiles that hold only nodata.
             fill = MIN_FILL_SEGMENT if problem.table.has_collar else MIN_FILL
             free = _free_shape(problem, seed, kfree)
-            if n <= free[0] * free[1] <= n / fill and free not in shapes and contains(free):
+            if n <= free[0] * free[1] <= n / fill and free not in shapes and _holds(free, box, quarter):
                 shapes.append(free)
             if segment is not None and len(segment) >= SEGMENT_SHARE * n:
                 area = box[0] * box[1]
                 bound = max(n / fill, area) if n >= MIN_FILL_SEGMENT * area else n / fill
-                shapes += [s for s in _holey_shapes(n, box, contains, bound, quarter) if s not in shapes]
+                shapes += [s for s in _holey_shapes(n, box, bound, quarter) if s not in shapes]
         if not shapes:  # nothing holds the segment: do not let it rule out every grid
             shapes = candidate_shapes(n, transposes=True)
     fitting = [s for s in shapes if problem.pins.fits(s)]
@@ -309,11 +304,12 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
             if buddies[s] >= 0.9 * top:
                 grids[s], _ = regrow(problem, grids[s], settings, deadline, rounds=3, tick=tick)
                 buddies[s] = problem.buddy_seams(grids[s])
-    # Below MIN_FILL a grid's empty cells must be explained by the collar:
-    # the tile sides around them hold nodata, as around a skipped tile.
-    sparse = [s for s in grids if n < MIN_FILL * s[0] * s[1]]
-    for s in sparse:
-        if len(grids) > 1 and _explained_holes(problem, grids[s]) < EXPLAINED_SHARE:
+    # Share of the sides facing each grid's empty cells that hold nodata.
+    # Below MIN_FILL a grid's empty cells must be explained by the collar,
+    # as around a skipped tile; in a collar the share also weighs the evidence.
+    explained = {s: _explained_holes(problem, g) for s, g in grids.items() if s[0] * s[1] > n}
+    for s in [s for s in grids if n < MIN_FILL * s[0] * s[1]]:
+        if len(grids) > 1 and explained[s] < EXPLAINED_SHARE:
             log.debug("shape %dx%d: its empty cells border valid data; left out", s[0], s[1])
             del grids[s], buddies[s]
     scores, keys = {}, {}
@@ -321,14 +317,14 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
     for s, grid in grids.items():
         b = buddies[s]
         evidence = b if s[0] * s[1] == n else b / HOLES_MARGIN
-        explained = _explained_holes(problem, grid) if collar and s[0] * s[1] > n else None
-        if explained is not None:
+        share = explained.get(s) if collar else None
+        if share is not None:
             # In a collar, empty cells next to valid data count against a grid.
-            evidence *= 0.5 + 0.5 * explained
+            evidence *= 0.5 + 0.5 * share
         keys[s] = (-evidence, s[0] * s[1], max(s) / min(s), problem.normalized_cost(grid))
         scores[s] = {"buddy_pairs": b, "mean_normalized_cost": keys[s][3]}
-        if explained is not None:
-            scores[s]["explained_holes"] = round(explained, 4)
+        if share is not None:
+            scores[s]["explained_holes"] = round(share, 4)
         log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], b, keys[s][3])
     ranked = sorted(keys, key=keys.get)
     best = ranked[0]
@@ -337,12 +333,8 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
     # whose placement the chosen frame holds, or with quarter turns the same
     # grid turned, would end as the same mosaic.
     quarter = quarter_turns(problem)
-
-    def holds(frame, box):
-        return (box[0] <= frame[0] and box[1] <= frame[1]) or (quarter and box[1] <= frame[0] and box[0] <= frame[1])
-
     boxes = {s: _placed_box(grids[s]) for s in ranked}
-    others = [s for s in ranked[1:] if not (holds(best, boxes[s]) or holds(s, boxes[best]))]
+    others = [s for s in ranked[1:] if not (_holds(best, boxes[s], quarter) or _holds(s, boxes[best], quarter))]
     runner_up = others[0] if others else None
     margin = None
     if runner_up is not None:

@@ -31,11 +31,6 @@ class Grid(NamedTuple):
     def copy(self):
         return Grid(self.tiles.copy(), self.orientations.copy())
 
-    @property
-    def placed(self):
-        """Number of tiles placed."""
-        return int(np.sum(self.tiles >= 0))
-
 
 @dataclass(frozen=True)
 class SearchSettings:
