@@ -182,7 +182,8 @@ def main():
     ap.add_argument("--skip-open", action="store_true")
     ap.add_argument("--skip-large", action="store_true")
     ap.add_argument("--time-limit", type=float, default=15.0,
-                    help="seconds for the evolutionary stage on the open-image puzzles (default 15)")
+                    help="seconds for the evolutionary stage on the open-image puzzles (default 15; 0 for none, "
+                         "as users run it: the search stops when it stops improving)")
     ap.add_argument("--infer-grid", action="store_true",
                     help="infer the grid as users' runs do (holes allowed) instead of giving the true shape; "
                          "the plain GA still gets the true shape")
@@ -205,7 +206,7 @@ def main():
             rows, cols = min(18, img.shape[1] // TILE), min(24, img.shape[2] // TILE)
             img = _centre(img, rows, cols, TILE)
             for turns in ((False,) if args.quick else (False, True)):
-                res = run_case(name, img, rows, cols, turns, rng, methods, time_limit=args.time_limit,
+                res = run_case(name, img, rows, cols, turns, rng, methods, time_limit=args.time_limit or None,
                                infer=args.infer_grid)
                 for m, v in res.items():
                     summary.setdefault((turns, m), []).append(v)
