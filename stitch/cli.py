@@ -261,7 +261,9 @@ def solve(
     typer.echo(f"placed {int(p.placed.sum())} tiles in a {p.shape[0]}x{p.shape[1]} grid "
                f"({how}, seams by {result.measure}, seed {seed})")
     ev = s.shape_evidence
-    if ev is not None:
+    if ev is not None and ev.get("source") == "partial edge tiles":
+        typer.echo(f"grid fixed by the {ev['partial_tiles']} partial edge tiles (last column and row)")
+    elif ev is not None:
         runner = (f"runner-up {ev['runner_up'][0]}x{ev['runner_up'][1]}, margin {ev['margin']:.1%}"
                   if ev["runner_up"] else f"{ev['shapes_tried']} grid(s) tried, none a real alternative")
         seg = ev["trusted_segment"]

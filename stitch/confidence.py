@@ -18,7 +18,7 @@ import numpy as np
 from .layout import seam_pairs
 from .orientation import FACE, STEPS
 
-__all__ = ["Verdict", "look_alikes", "review_labels", "run_verdict", "seam_confidence", "side_confidence",
+__all__ = ["Verdict", "grid_source", "look_alikes", "review_labels", "run_verdict", "seam_confidence", "side_confidence",
            "tile_confidence"]
 
 #: Two tiles look alike when the distance between their edge strips (all four
@@ -179,7 +179,8 @@ class Verdict:
     buddy_seams : float
         Share of the mosaic's seams that join best buddies.
     grid : str
-        ``"given"``, ``"inferred"`` or ``"inferred, thin margin"``.
+        :func:`grid_source`, with ``", thin margin"`` when the inferred grid
+        barely beat the runner-up.
     reasons : tuple of str
     """
 
@@ -197,6 +198,16 @@ class Verdict:
         text = (f"{self.level}: {self.confident_tiles:.0%} of the tiles rest on confident seams, "
                 f"{self.buddy_seams:.0%} of the seams join best buddies; grid {self.grid}")
         return text + (f" ({'; '.join(self.reasons)})" if self.reasons else "")
+
+
+def grid_source(grid_given, shape_evidence):
+    """Where the grid came from: ``"given"``, ``"partial edge tiles"`` (their
+    counts fixed it) or ``"inferred"`` (from the seams)."""
+    if grid_given:
+        return "given"
+    if shape_evidence and shape_evidence.get("source") == "partial edge tiles":
+        return "partial edge tiles"
+    return "inferred"
 
 
 def run_verdict(placement, table, *, threshold=0.5, grid_given=False, shape_evidence=None):
@@ -223,7 +234,7 @@ def run_verdict(placement, table, *, threshold=0.5, grid_given=False, shape_evid
     else:
         buddies = 0.0
     thin = bool(shape_evidence and shape_evidence.get("thin"))
-    grid = "given" if grid_given else ("inferred, thin margin" if thin else "inferred")
+    grid = grid_source(grid_given, shape_evidence) + (", thin margin" if thin else "")
     reasons = []
     if confident < DOUBTFUL_SHARE or buddies < DOUBTFUL_BUDDIES:
         level = "doubtful"

@@ -23,7 +23,7 @@ import numpy as np
 
 from .errors import OptionError, PlacementFileError
 from .files import write_text_atomic
-from .orientation import TURN_MODES, facing_side, turned_orientations
+from .orientation import FACE, TURN_MODES, facing_side, turned_orientations
 
 __all__ = [
     "CSV_HEADER",
@@ -297,14 +297,16 @@ def read_placement_csv(path):
         raise PlacementFileError(f"{path.name}: {exc}") from None
 
 
-def normalize_frame(placement, *, orientations=(0,), fit=None, anchors=None):
+def normalize_frame(placement, *, orientations=(0,), fit=None, anchors=None, outer=None):
     """Choose the global turn (and mirror) nothing else fixes.
 
     Seam costs do not change when the whole mosaic is turned or mirrored, so
     the search cannot tell those frames apart. The frame chosen is the one
     that makes the ``anchors`` (tiles whose georeferencing survived) upright
-    and unmirrored, or, without anchors, the one that leaves the most tiles as
-    stored in their files (rotation 0, not mirrored).
+    and unmirrored; then the one that turns the most partial edge tiles'
+    outer sides right and down, where tilers put the raster's remainder; then
+    the one that leaves the most tiles as stored in their files (rotation 0,
+    not mirrored).
 
     Parameters
     ----------
@@ -317,6 +319,9 @@ def normalize_frame(placement, *, orientations=(0,), fit=None, anchors=None):
         the user gave); the result then has exactly this shape.
     anchors : array of int, optional
         Indices of anchor tiles.
+    outer : ndarray of bool, shape (n_tiles, 4), optional
+        File sides of partial edge tiles that faced the raster's edge
+        (:func:`stitch.partial.partial_edges`).
 
     Returns
     -------
@@ -335,7 +340,7 @@ def normalize_frame(placement, *, orientations=(0,), fit=None, anchors=None):
                 cand = replace(cand, shape=tuple(fit))
             upright = cand.placed & (cand.rotations == 0) & ~cand.mirrored
             on_anchor = int(upright[np.asarray(anchors, int)].sum()) if anchors is not None and len(anchors) else 0
-            key = (on_anchor, int(upright.sum()), -k, -int(m))
+            key = (on_anchor, _edge_outward(cand, outer), int(upright.sum()), -k, -int(m))
             if best_key is None or key > best_key:
                 best, best_key = cand, key
     if best is None:
@@ -344,3 +349,14 @@ def normalize_frame(placement, *, orientations=(0,), fit=None, anchors=None):
                               f"{fit[0]}x{fit[1]}")
         return placement.cropped()
     return best
+
+
+def _edge_outward(placement, outer):
+    """Partial edge tiles whose outer sides all face right or down."""
+    if outer is None or not outer.any():
+        return 0
+    tiles = np.flatnonzero(outer.any(axis=1) & placement.placed)
+    codes = 4 * placement.mirrored[tiles].astype(np.int64) + placement.rotations[tiles]
+    up, left = FACE[codes, 0], FACE[codes, 3]  # file sides facing up and left
+    bad = outer[tiles, up] | outer[tiles, left]
+    return int((~bad).sum())

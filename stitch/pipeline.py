@@ -10,7 +10,7 @@ from __future__ import annotations
 import logging
 import time
 import warnings
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -30,6 +30,7 @@ from .georef import (
     world_file_path,
 )
 from .layout import Placement, allowed_orientations, normalize_frame
+from .partial import partial_edges, partial_grid, upright_pattern
 from .mosaic import mosaic_size, write_mosaic
 from .report import check_report, report_paths, write_report
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
@@ -230,27 +231,41 @@ def place_tiles(tileset, options=None, *, progress=None):
         r, c = options.grid
         raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
-    if tileset.partial.any() and (options.rotations or options.mirrored):
+    if tileset.partial.any() and not any(o % 2 for o in orientations) and not upright_pattern(tileset):
         raise OptionError(
-            f"{int(tileset.partial.sum())} partial edge tile(s) in {str(tileset.folder)!r}: turned or mirrored "
-            "tiles with partial edges are not supported yet; solve them upright (--rotations 0, no --mirrored)"
+            f"the {int(tileset.partial.sum())} partial edge tiles in {str(tileset.folder)!r} come in more than one "
+            "width or height, as when narrow tiles are stored turned a quarter; solve with --rotations 90"
         )
-    table = score_seams(tileset.edges, orientations=orientations, measure=options.measure, k=options.candidates,
+    edges, outer = partial_edges(tileset, orientations)
+    table = score_seams(edges, orientations=orientations, measure=options.measure, k=options.candidates,
                         blank=tileset.blank, progress=progress)
     pins = _pins(tileset, options)
+    # A complete partial column and row fix the grid (their counts).
+    from_edges = partial_grid(tileset, orientations) if options.grid is None else None
+    shape = options.grid or from_edges
     # The table carries the orientations it was scored for; the search and
     # the frame take them from it.
-    result = search_placement(table, shape=options.grid, settings=options.search, rng=options.seed,
-                              progress=progress, pins=pins, holes=options.grid is None)
+    result = search_placement(table, shape=shape, settings=options.search, rng=options.seed,
+                              progress=progress, pins=pins, holes=shape is None)
+    if from_edges is not None:
+        result = replace(result, shape_evidence=_edge_evidence(from_edges, tileset))
     raw = Placement.from_grid(tileset.names, result.tiles, result.orientations)
     if pins.absolute:
         placement = raw  # the pins fix the frame and the cells
     else:
         anchors = [i for i, g in enumerate(tileset.georefs) if g is not None]
-        placement = normalize_frame(raw, orientations=table.orientations, fit=options.grid, anchors=anchors)
+        placement = normalize_frame(raw, orientations=table.orientations, fit=shape, anchors=anchors, outer=outer)
     conf = tile_confidence(placement, table, result.agreement)
     conf[tileset.blank] = 0.0
     return placement.with_confidence(conf), result, table, pins
+
+
+def _edge_evidence(shape, tileset):
+    """Grid evidence (as :meth:`stitch.search.shapes.ShapeChoice.evidence`)
+    when the partial edge tiles fixed the grid."""
+    return {"source": "partial edge tiles", "search_frame": list(shape), "runner_up": None, "margin": None,
+            "thin": False, "trusted_segment": None, "shapes_tried": 1,
+            "partial_tiles": int(tileset.partial.sum())}
 
 
 def _georeference(options, placement, tileset):

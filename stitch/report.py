@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
+from .confidence import grid_source
 from .errors import OutputError
 from .files import check_outputs, write_bytes_atomic, write_text_atomic
 from .layout import write_placement_csv
@@ -93,7 +94,7 @@ def summary_dict(result):
                    "blank_tiles": [result.tileset.names[i] for i in np.flatnonzero(result.tileset.blank)]},
         "options": result.options.as_dict(),
         "grid": list(p.shape),
-        "grid_source": "given" if result.options.grid else "inferred",
+        "grid_source": grid_source(result.options.grid is not None, result.search.shape_evidence),
         "grid_inference": result.search.shape_evidence,
         "verdict": result.verdict.as_dict() if result.verdict is not None else None,
         "holes": {"cells": holes, "marked_by": hole_marking(result.tileset.dtype, result.tileset.nodata, holes > 0)},

@@ -40,7 +40,9 @@ __all__ = [
     "TileSet",
     "find_tiles",
     "is_own_output",
+    "pad_to_cell",
     "partial_sizes",
+    "read_masked",
     "read_tile",
     "read_tileset",
     "side_strips",
@@ -300,6 +302,43 @@ def read_tile(path):
             ) from exc
 
 
+def read_masked(path, nodata=None, dtype=None):
+    """A tile's pixels and where they are nodata.
+
+    Parameters
+    ----------
+    path : path-like
+    nodata : float, optional
+        The set's nodata value, applied when the file declares none.
+    dtype : numpy dtype, optional
+        Type of the returned pixels (default the file's).
+
+    Returns
+    -------
+    pixels : ndarray, shape (bands, rows, cols)
+    mask : ndarray of bool, shape (rows, cols)
+        True where a band is nodata (GDAL's mask), every band holds the set's
+        nodata value, or a value is not finite.
+    """
+    path = Path(path)
+    with _open(path) as src:
+        try:
+            masked = src.read(masked=True)
+        except RasterioError as exc:
+            raise RasterReadError(
+                f"cannot read pixels of tile {path.name!r} (truncated or corrupt?): {exc}; "
+                "remove or replace the file"
+            ) from exc
+        declared = src.nodata
+    pixels = np.asarray(masked.data, dtype=dtype)
+    mask = np.ma.getmaskarray(masked).any(axis=0)
+    if nodata is not None and declared is None:
+        mask |= (pixels == nodata).all(axis=0)
+    if pixels.dtype.kind == "f":
+        mask |= ~np.isfinite(pixels).all(axis=0)
+    return pixels, mask
+
+
 def _is_usable_transform(t):
     vals = (t.a, t.b, t.c, t.d, t.e, t.f)
     if not all(math.isfinite(v) for v in vals):
@@ -405,7 +444,11 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
     counts = {}
     for s in shapes:
         counts[s] = counts.get(s, 0) + 1
-    sizes = partial_sizes(shapes) if len(counts) > 1 else None
+    sizes = None
+    if len(counts) > 1:
+        sizes = partial_sizes(shapes)
+        if sizes is None:  # quarter turns may have stored narrow tiles as short ones
+            sizes = partial_sizes(shapes, turned=True)
     if len(counts) > 1 and sizes is None:
         common = max(counts, key=counts.get)
         odd = [(n, s) for n, s in zip(names, shapes) if s != common]
@@ -431,30 +474,10 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
     valid = [np.ones((n, height if s % 2 else width, 2), bool) for s in range(4)]
     blank = np.zeros(n, bool)
     for i, path in enumerate(paths):
-        with _open(path) as src:
-            try:
-                masked = src.read(masked=True)
-            except RasterioError as exc:
-                raise RasterReadError(
-                    f"cannot read pixels of tile {path.name!r} (truncated or corrupt?): {exc}; "
-                    "remove or replace the file"
-                ) from exc
-        pixels = np.asarray(masked.data, dtype=strip_dtype)
-        mask = np.ma.getmaskarray(masked).any(axis=0)
-        if nodata is not None and src.nodata is None:
-            mask |= (pixels == nodata).all(axis=0)
-        if pixels.dtype.kind == "f":
-            mask |= ~np.isfinite(pixels).all(axis=0)
+        pixels, mask = read_masked(path, nodata, strip_dtype)
         good = pixels[:, ~mask]
         if pixels.shape[1:] != (height, width):
-            # A partial edge tile: the raster ends inside its cell, so its
-            # strips are cut from the full cell with the rest nodata (its
-            # outer side then faces only the border, by the footprint rule).
-            full = np.zeros((pixels.shape[0], height, width), strip_dtype)
-            full_mask = np.ones((height, width), bool)
-            full[:, :pixels.shape[1], :pixels.shape[2]] = pixels
-            full_mask[:pixels.shape[1], :pixels.shape[2]] = mask
-            pixels, mask = full, full_mask
+            pixels, mask = pad_to_cell(pixels, mask, width, height)
         blank[i] = good.size == 0 or bool(np.all(good.max(axis=1) == good.min(axis=1)))
         for s, (strip, vstrip) in enumerate(zip(side_strips(pixels), side_strips(~mask[None]))):
             sides[s][i] = strip
@@ -480,7 +503,31 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
     )
 
 
-def partial_sizes(shapes):
+def pad_to_cell(pixels, mask, width, height, offset=(0, 0)):
+    """A partial edge tile in a full ``width x height`` cell, the rest nodata.
+
+    The raster ends inside a partial tile's cell, so its strips are cut from
+    the full cell with the missing part nodata: its outer sides then face only
+    the border, by the footprint rule. Upright, the tile's pixels sit at the
+    cell's upper left (``offset`` (0, 0)); ``offset`` is the column and row of
+    its first pixel when the tile is turned or mirrored in its file.
+
+    Returns
+    -------
+    pixels : ndarray, shape (bands, height, width)
+    mask : ndarray of bool, shape (height, width)
+        True where nodata.
+    """
+    x, y = offset
+    rows, cols = pixels.shape[1:]
+    full = np.zeros((pixels.shape[0], height, width), pixels.dtype)
+    full_mask = np.ones((height, width), bool)
+    full[:, y:y + rows, x:x + cols] = pixels
+    full_mask[y:y + rows, x:x + cols] = mask
+    return full, full_mask
+
+
+def partial_sizes(shapes, *, turned=False):
     """Tile sizes when a folder is a full-size set plus partial edge tiles, else None.
 
     Tiled exports end in a narrower right column and a shorter bottom row
@@ -492,6 +539,11 @@ def partial_sizes(shapes):
     Parameters
     ----------
     shapes : list of (width, height, count, dtype)
+    turned : bool, optional
+        The tiles may be turned a quarter in their files, so a narrow tile
+        can be stored as a short one and the other way round: square full
+        tiles, partial tiles with one side ``W`` and the other ``w`` or
+        ``h``, at most one corner tile (``w x h`` or ``h x w``).
 
     Returns
     -------
@@ -506,18 +558,36 @@ def partial_sizes(shapes):
            [20,  9]])
     >>> partial_sizes([(64, 64, 3, "uint8"), (32, 32, 3, "uint8")]) is None
     True
+
+    A narrow tile stored turned looks like a short one of another height:
+
+    >>> partial_sizes([(64, 64, 1, "uint8"), (20, 64, 1, "uint8"), (64, 20, 1, "uint8"), (64, 9, 1, "uint8")])
+    >>> partial_sizes([(64, 64, 1, "uint8"), (20, 64, 1, "uint8"), (64, 20, 1, "uint8"), (64, 9, 1, "uint8")],
+    ...               turned=True).shape
+    (4, 2)
     """
     if len({(c, d) for _, _, c, d in shapes}) != 1:
         return None
     sizes = np.array([(w, h) for w, h, _, _ in shapes], np.int64)
     big_w, big_h = sizes[:, 0].max(), sizes[:, 1].max()
-    narrow_w = {int(w) for w, h in sizes if w < big_w}
-    short_h = {int(h) for w, h in sizes if h < big_h}
     full = (sizes[:, 0] == big_w) & (sizes[:, 1] == big_h)
     corner = (sizes[:, 0] < big_w) & (sizes[:, 1] < big_h)
     narrow = (sizes[:, 0] < big_w) & (sizes[:, 1] == big_h)
     short = (sizes[:, 0] == big_w) & (sizes[:, 1] < big_h)
-    if not full.any() or len(narrow_w) > 1 or len(short_h) > 1 or corner.sum() > 1:
+    if not full.any() or corner.sum() > 1:
+        return None
+    if turned:
+        if big_w != big_h:
+            return None
+        cut = {int(v) for v in sizes[~full].ravel() if v < big_w}  # the partial sides, w and h
+        if len(cut) > 2 or (corner.any() and not (narrow | short).any()):
+            return None
+        if corner.any() and len(cut) == 2 and set(sizes[corner][0].tolist()) != cut:
+            return None
+        return sizes
+    narrow_w = {int(w) for w, h in sizes if w < big_w}
+    short_h = {int(h) for w, h in sizes if h < big_h}
+    if len(narrow_w) > 1 or len(short_h) > 1:
         return None
     if corner.any() and not (narrow.any() and short.any()):
         return None  # a corner tile comes with a partial column and a partial row

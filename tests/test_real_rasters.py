@@ -78,10 +78,35 @@ def test_a_tiled_export_with_partial_edge_tiles_comes_back_whole(tmp_path, name,
         np.testing.assert_array_equal(out.read(), src.read())
 
 
-def test_partial_edge_tiles_with_turns_are_refused_with_a_way_out(tmp_path):
+@pytest.mark.parametrize(
+    "name, tile, turns",
+    [
+        pytest.param("rmnp-rgb.tif", 64, 90, id="Landsat RGB, quarter turns"),
+        pytest.param("rmnp-dem.tif", 32, 180, id="DEM, half turns"),
+    ],
+)
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_partial_edge_tiles_stored_turned_come_back_whole(tmp_path, name, tile, turns):
+    """Partial edge tiles stored turned: no tile keeps its georeferencing, so
+    the frame comes from the partial tiles alone (the remainder right and
+    below), and the mosaic is the source raster pixel for pixel."""
+    src_path = _example(name)
+    cut = cut_raster(src_path, tmp_path / "t", tile, shuffle=True, strip_georef=True, rotate=turns, seed=5,
+                     key_path=tmp_path / "k.csv", partial=True)
+    assert cut.key.rotations.any()
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=5, rotations=turns))
+    assert result.placement.shape == cut.key.shape
+    assert result.search.shape_evidence["source"] == "partial edge tiles"
+    assert result.verdict.grid == "partial edge tiles"
+    with rasterio.open(src_path) as src, rasterio.open(result.outputs["mosaic"]) as out:
+        assert (out.width, out.height) == (src.width, src.height)
+        np.testing.assert_array_equal(out.read(), src.read())
+
+
+def test_partial_edge_tiles_stored_turned_but_solved_upright_are_refused_with_a_way_out(tmp_path):
     from stitch.errors import OptionError
 
-    cut_raster(_example("rmnp-dem.tif"), tmp_path / "t", 32, shuffle=True, seed=4, key_path=tmp_path / "k.csv",
-               partial=True)
-    with pytest.raises(OptionError, match="--rotations 0"):
-        solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(rotations=180))
+    cut_raster(_example("rmnp-rgb.tif"), tmp_path / "t", 64, shuffle=True, strip_georef=True, rotate=90, seed=5,
+               key_path=tmp_path / "k.csv", partial=True)
+    with pytest.raises(OptionError, match="--rotations 90"):
+        solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions())

@@ -122,6 +122,7 @@ class ShapeChoice:
             return None
         seg = self.segment
         return {
+            "source": "seams",
             "search_frame": list(self.shape),
             "runner_up": list(self.runner_up) if self.runner_up else None,
             "margin": None if self.margin is None else round(float(self.margin), 4),
