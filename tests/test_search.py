@@ -97,6 +97,28 @@ def test_missing_tiles_leave_holes_and_neighbours_stay_right(tmp_path):
     assert result_summary(result)["holes"] == {"cells": 5, "marked_by": "internal mask band"}
 
 
+@pytest.mark.parametrize("image, seed, missing", [
+    # scikit-image's rocket (a SpaceX launch photo, public domain; from
+    # memory): 79 tiles left, a prime count that only strips hold exactly,
+    # came out as a 1 x 79 strip.
+    ("rocket", 2, 1),
+    ("coffee", 2, 3),  # scikit-image's coffee (CC0)
+])
+@pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
+def test_a_few_missing_tiles_leave_the_grid_as_it_was(tmp_path, image, seed, missing):
+    """An 8 x 10 set of 40 px tiles with a few tiles gone and no nodata to
+    explain the holes: the grid is still 8 x 10, every present tile in its
+    cell, not a strip or a frame a column wider in which a tile dodges."""
+    src = write_raster(tmp_path / "src.tif", skimage_image(image)[:, :320, :400])
+    cut = cut_raster(src, tmp_path / "t", 40, shuffle=True, seed=seed, key_path=tmp_path / "k.csv")
+    assert cut.key.shape == (8, 10)
+    for i in np.random.default_rng(seed).choice(80, missing, replace=False):
+        (tmp_path / "t" / cut.key.names[i]).unlink()
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=seed))
+    assert result.placement.shape == (8, 10)
+    assert score_placement(result.placement, cut.key).direct == pytest.approx((80 - missing) / 80)
+
+
 def result_summary(result):
     import json
 

@@ -51,6 +51,13 @@ EXPLAINED_SHARE = 0.8
 #: than a full one before it wins.
 HOLES_MARGIN = 1.05
 
+#: Without a nodata collar to explain them, every empty cell of a grid with
+#: holes costs this share of a tile's worth of evidence (its best-buddy
+#: seams are scaled by ``1 - HOLE_COST * empty / tiles``): a frame a column
+#: wider lets one tile dodge a seam it does not like, and a few more
+#: best-buddy seams must not buy a column of holes (our choice, no source).
+HOLE_COST = 0.5
+
 #: Below this margin over the runner-up the inferred grid is reported as
 #: uncertain.
 THIN_MARGIN = 0.03
@@ -241,6 +248,10 @@ def shapes_to_try(problem, shape, seed, kfree, holes, segment=None):
                 area = box[0] * box[1]
                 bound = max(n / fill, area) if n >= MIN_FILL_SEGMENT * area else n / fill
                 shapes += [s for s in _holey_shapes(n, box, bound, quarter) if s not in shapes]
+            if n > 3 and all(min(s) == 1 for s in shapes):
+                # Only a strip holds the tiles exactly (a prime count, after
+                # a tile went missing): the nearly full grids compete too.
+                shapes += [s for s in _holey_shapes(n, box, n / MIN_FILL, quarter) if s not in shapes]
         if not shapes:  # nothing holds the segment: do not let it rule out every grid
             shapes = candidate_shapes(n, transposes=True)
     fitting = [s for s in shapes if problem.pins.fits(s)]
@@ -322,6 +333,8 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
         if share is not None:
             # In a collar, empty cells next to valid data count against a grid.
             evidence *= 0.5 + 0.5 * share
+        elif s[0] * s[1] > n:
+            evidence *= max(0.0, 1.0 - HOLE_COST * (s[0] * s[1] - n) / n)
         keys[s] = (-evidence, s[0] * s[1], max(s) / min(s), problem.normalized_cost(grid))
         scores[s] = {"buddy_pairs": b, "mean_normalized_cost": keys[s][3]}
         if share is not None:
