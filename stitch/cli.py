@@ -190,6 +190,22 @@ def _measure_help():
             f"best-buddy seams (mgc alone where prediction would take over ~5 s).")
 
 
+def _grid_line(shape, ev):
+    """One line on where the grid came from and how sure it is."""
+    grid = f"{shape[0]}x{shape[1]} grid"
+    if ev is None:
+        return f"{grid} (given)"
+    if ev.get("source") == "partial edge tiles":
+        return f"{grid} fixed by the {ev['partial_tiles']} partial edge tiles (last column and row)"
+    runner = (f"runner-up {ev['runner_up'][0]}x{ev['runner_up'][1]}, margin {ev['margin']:.1%}"
+              + (", thin: give --grid if you know it" if ev["thin"] else "")
+              if ev["runner_up"] else f"{ev['shapes_tried']} grid(s) tried, none a real alternative")
+    seg = ev["trusted_segment"]
+    held = (f"; largest trusted segment {seg['tiles']} tiles over {seg['box'][0]}x{seg['box'][1]} cells"
+            if seg else "")
+    return f"{grid} inferred ({runner}{held})"
+
+
 @app.command()
 def solve(
     tiles_dir: Annotated[Path, typer.Argument(help="Folder of GeoTIFF, PNG or JPEG tiles of one size.")],
@@ -260,16 +276,8 @@ def solve(
     how = f"{s.strategy}, {s.generations} generations" if s.strategy == "evolution" else s.strategy
     typer.echo(f"placed {int(p.placed.sum())} tiles in a {p.shape[0]}x{p.shape[1]} grid "
                f"({how}, seams by {result.measure}, seed {seed})")
-    ev = s.shape_evidence
-    if ev is not None and ev.get("source") == "partial edge tiles":
-        typer.echo(f"grid fixed by the {ev['partial_tiles']} partial edge tiles (last column and row)")
-    elif ev is not None:
-        runner = (f"runner-up {ev['runner_up'][0]}x{ev['runner_up'][1]}, margin {ev['margin']:.1%}"
-                  if ev["runner_up"] else f"{ev['shapes_tried']} grid(s) tried, none a real alternative")
-        seg = ev["trusted_segment"]
-        held = (f"; largest trusted segment {seg['tiles']} tiles over {seg['box'][0]}x{seg['box'][1]} cells"
-                if seg else "")
-        typer.echo(f"grid inferred ({runner}{held})")
+    if s.shape_evidence is not None:
+        typer.echo(_grid_line(p.shape, s.shape_evidence))
     g = result.georeference
     typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
     if result.control is not None:
@@ -356,15 +364,25 @@ def score(
 def inspect(
     tiles_dir: Annotated[Path, typer.Argument(help="Folder of tiles to check.")],
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
+    grid: Annotated[Optional[str], typer.Option(help="Grid you would give solve, as ROWSxCOLS.")] = None,
+    rotations: Annotated[int, typer.Option(help="Turns a tile may need, as for solve.")] = 0,
+    mirrored: Annotated[bool, typer.Option("--mirrored", help="Tiles may also be mirrored, as for solve.")] = False,
+    infer: Annotated[bool, typer.Option(
+        "--infer", help="Also place the tiles as solve would (nothing written; takes about as long) and report "
+                        "the grid found, how sure its inference is and the run's verdict.")] = False,
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON for scripts.")] = False,
+    seed: Seed = 0,
     verbose: Verbose = 0,
 ):
     """Check a tile folder before solving (reads headers and edges; exit 1 if solve would fail)."""
     from .preflight import inspect_tiles
 
     _setup_logging(verbose, False)
+    _check_choice(rotations, sorted(TURN_MODES), "--rotations")
+    shape = _parse_grid(grid)
     with _errors(verbose):
-        found = inspect_tiles(tiles_dir, recursive=recursive)
+        found = inspect_tiles(tiles_dir, recursive=recursive, rotations=rotations, mirrored=mirrored, grid=shape,
+                              infer=infer, seed=seed)
     if as_json:
         typer.echo(json.dumps(found.as_dict(), indent=2))
     else:
@@ -377,7 +395,13 @@ def inspect(
                        + ("" if found.anchors_agree is None else
                           (" (they agree)" if found.anchors_agree else " (they DISAGREE)")))
             typer.echo(f"grid shapes that hold them: {', '.join(found.grid_shapes[:12])}")
-            typer.echo(f"estimated solve: ~{found.estimated_seconds:.0f} s, ~{found.estimated_memory_mb:.0f} MB (upright)")
+            turns = {0: "upright", 180: "half turns", 90: "quarter turns"}[rotations] + (", mirrored" if mirrored else "")
+            typer.echo(f"estimated solve: ~{found.estimated_seconds:.0f} s, ~{found.estimated_memory_mb:.0f} MB ({turns})")
+        if found.inferred_grid is not None:
+            typer.echo(f"placed as solve would, in {found.seconds:.0f} s: {_grid_line(found.inferred_grid, found.grid_evidence)}")
+            v = found.verdict
+            typer.echo(f"verdict: {v['level']}: {v['confident_tiles']:.0%} of the tiles rest on confident seams, "
+                       f"{v['buddy_seams']:.0%} of the seams join best buddies")
         for note in found.notes:
             typer.echo(f"note: {note}")
         for problem in found.problems:

@@ -36,7 +36,7 @@ from .report import check_report, report_paths, write_report
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
-from .tiles import MAX_TILE_PIXELS, read_tileset
+from .tiles import MAX_TILE_PIXELS, RASTER_SUFFIXES, is_own_output, read_tileset
 
 __all__ = ["SolveOptions", "SolveResult", "default_report_dir", "place_tiles", "solve"]
 
@@ -176,6 +176,21 @@ def _inside(path, folder):
         return False
 
 
+def _refuse_inputs(paths, tiles_dir, recursive):
+    """Refuse outputs that would replace a tile (``--overwrite`` never
+    replaces an input): an existing raster among the folder's tiles that
+    stitch did not write."""
+    folder = Path(tiles_dir)
+    for path in paths:
+        path = Path(path)
+        if not path.is_file() or path.suffix.lower() not in RASTER_SUFFIXES:
+            continue
+        inside = path.resolve().parent == folder.resolve() or (recursive and _inside(path, folder))
+        if inside and not is_own_output(path):
+            raise OptionError(f"{str(path)!r} is one of the tiles in {str(folder)!r}; writing there would destroy "
+                              "an input (--overwrite never replaces tiles): choose another output or report folder")
+
+
 def _duplicate_notes(tileset):
     """Warnings for tiles whose four edges are identical (interchangeable)."""
     dups = tileset.duplicate_groups()
@@ -216,6 +231,11 @@ def _pins(tileset, options):
         return Pins()
     t, r, c = zip(*cells)
     return Pins(t, r, c, absolute=False)
+
+
+#: What helps when the tiles themselves carry no seam evidence.
+NO_EVIDENCE_ADVICE = ("pin the tiles whose cells you know (--pin NAME=ROW,COL) with --grid ROWSxCOLS, keep or "
+                      "restore their georeferencing, or add the neighbouring tiles that show ground detail")
 
 
 def place_tiles(tileset, options=None, *, progress=None):
@@ -330,6 +350,8 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
             f"output {str(output)!r} is inside the tile folder and could pass for a tile; write it elsewhere "
             "or put 'mosaic' in its name"
         )
+    _refuse_inputs([output, world_file_path(output), *report_paths(report_dir).values()], tiles_dir,
+                   options.recursive)
     check_outputs([output, world_file_path(output)], overwrite=overwrite)
     check_report(report_dir, overwrite=overwrite)
 
@@ -341,7 +363,10 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         raise TileSetError(f"{str(tiles_dir)!r} holds a single tile; there is nothing to put together")
     if tileset.blank.all():
         raise TileSetError(f"every tile in {str(tiles_dir)!r} is blank (constant or all nodata); "
-                           "no seam can be matched")
+                           "no seam can be matched: " + NO_EVIDENCE_ADVICE)
+    if tileset.structureless().all() and not (options.grid and options.pins):
+        raise TileSetError(f"no tile in {str(tiles_dir)!r} shows ground detail (all are constant or noise-like, "
+                           "as open water or haze): no seam can be matched: " + NO_EVIDENCE_ADVICE)
     notes.extend(_duplicate_notes(tileset))
     timings["read"] = time.perf_counter() - t0
 

@@ -42,6 +42,10 @@ class Inspection:
     estimated_memory_mb: float = 0.0
     problems: tuple = ()
     notes: tuple = field(default=())
+    inferred_grid: tuple | None = None
+    grid_evidence: dict | None = None
+    verdict: dict | None = None
+    seconds: float | None = None
 
     @property
     def ok(self):
@@ -64,8 +68,25 @@ def _estimate(n, size, bands, quarter=False):
     return seam_s + search_s + 5, mem
 
 
-def inspect_tiles(folder, *, recursive=False):
+def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=None, infer=False, seed=0):
     """Check a tile folder before solving.
+
+    Parameters
+    ----------
+    folder : path-like
+    recursive : bool, optional
+    rotations : {0, 180, 90}, optional
+        Turns the tiles may need, as ``solve --rotations`` (for the estimate
+        and ``infer``).
+    mirrored : bool, optional
+    grid : (int, int), optional
+        The grid the user would give ``solve``: checked against the tile count.
+    infer : bool, optional
+        Also run the placement (seams and search, as ``solve`` does with
+        these options and ``seed``, writing nothing) and report the grid
+        found, how sure its inference is and the run's verdict. Takes about
+        as long as ``solve``.
+    seed : int, optional
 
     Returns
     -------
@@ -84,6 +105,9 @@ def inspect_tiles(folder, *, recursive=False):
     blank = tuple(np.asarray(ts.names)[ts.blank].tolist())
     if blank and len(blank) == n:
         problems.append("every tile is blank (constant or all nodata): no seam carries information")
+    elif n >= 2 and ts.structureless().all():
+        problems.append("no tile shows ground detail (all are constant or noise-like, as open water or haze): "
+                        "no seam carries information")
     elif blank:
         notes.append(f"{len(blank)} blank tile(s) will be placed with no evidence")
     duplicates = ts.duplicate_groups()
@@ -100,11 +124,32 @@ def inspect_tiles(folder, *, recursive=False):
             problems.append(str(exc))
     else:
         notes.append("no tile kept georeferencing: give --bounds, --origin or --gcps with --crs")
+    if grid is not None and grid[0] * grid[1] < n:
+        problems.append(f"--grid {grid[0]}x{grid[1]} holds {grid[0] * grid[1]} tiles but the folder has {n}")
     shapes = tuple(f"{r}x{c}" for r, c in candidate_shapes(n)) if n >= 2 else ()
-    seconds, memory = _estimate(n, max(ts.width, ts.height), ts.count)
+    seconds, memory = _estimate(n, max(ts.width, ts.height), ts.count, quarter=rotations == 90)
+    found = {}
+    if infer and not problems:
+        found = _infer(ts, rotations, mirrored, grid, seed)
     return Inspection(
         folder=str(folder), tiles=n, tile_size=(ts.width, ts.height), bands=ts.count, dtype=ts.dtype,
         nodata=ts.nodata, blank=blank, duplicates=duplicates, georeferenced=georef, anchors_agree=agree,
         grid_shapes=shapes, estimated_seconds=round(seconds, 1), estimated_memory_mb=round(memory),
-        problems=tuple(problems), notes=tuple(notes),
+        problems=tuple(problems), notes=tuple(notes), **found,
     )
+
+
+def _infer(tileset, rotations, mirrored, grid, seed):
+    """The placement ``solve`` would make, down to what ``inspect`` reports."""
+    import time
+
+    from .confidence import run_verdict
+    from .pipeline import SolveOptions, place_tiles
+
+    t0 = time.perf_counter()
+    options = SolveOptions(grid=grid, rotations=rotations, mirrored=mirrored, seed=seed)
+    placement, search, table, _ = place_tiles(tileset, options)
+    verdict = run_verdict(placement, table, threshold=options.confidence_threshold, grid_given=grid is not None,
+                          shape_evidence=search.shape_evidence)
+    return {"inferred_grid": tuple(placement.shape), "grid_evidence": search.shape_evidence,
+            "verdict": verdict.as_dict(), "seconds": round(time.perf_counter() - t0, 1)}

@@ -38,7 +38,9 @@ __all__ = [
     "EdgeStrips",
     "TileGeoref",
     "TileSet",
+    "NOISE_LIKE",
     "find_tiles",
+    "noise_like",
     "is_own_output",
     "pad_to_cell",
     "partial_sizes",
@@ -66,6 +68,14 @@ _WORLD_SUFFIXES = {
 #: Endings of sidecar files that belong to tiles (not reported as skipped).
 _SIDECARS = {".tfw", ".tifw", ".tiffw", ".pgw", ".pngw", ".jgw", ".jpgw", ".jpegw", ".wld", ".prj", ".xml", ".ovr",
              ".csv", ".json", ".geojson", ".html", ".txt", ".md", ".py"}
+
+#: A tile's edges are noise-like when, in every band, neighbouring boundary
+#: pixels differ by at least this factor times the spread of the pixels
+#: themselves: independent noise gives sqrt(2) (the variance of a difference
+#: of two independent draws is twice theirs, a fact of statistics), any
+#: ground detail far less, since neighbouring pixels of a scene are alike.
+#: The factor is our choice, no source.
+NOISE_LIKE = 1.2
 
 #: Largest tile GDAL may be asked to read, in pixels; larger headers are refused
 #: before any pixel is read (a corrupt header can claim terabytes).
@@ -201,6 +211,12 @@ class TileSet:
     @property
     def is_square(self):
         return self.width == self.height
+
+    def structureless(self):
+        """Boolean mask of tiles whose edges show no structure: blank, or
+        noise-like (:data:`NOISE_LIKE`), as open water, haze or an empty sensor
+        frame look. No seam can be matched on them."""
+        return self.blank | noise_like(self.edges)
 
     def duplicate_groups(self):
         """Names of non-blank tiles whose four edge strips are identical, grouped.
@@ -501,6 +517,41 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         colorinterp=colorinterp,
         sizes=sizes,
     )
+
+
+def noise_like(edges):
+    """Tiles whose boundary pixels show no spatial structure (see :data:`NOISE_LIKE`).
+
+    Parameters
+    ----------
+    edges : EdgeStrips
+
+    Returns
+    -------
+    ndarray of bool, shape (n_tiles,)
+        Constant tiles count as noise-like too.
+    """
+    n, bands = edges.sides[0].shape[0], edges.sides[0].shape[-1]
+    step = np.zeros((n, bands))
+    count = np.zeros((n, 1))
+    steps = np.zeros((n, 1))
+    total = np.zeros((n, bands))
+    total_sq = np.zeros((n, bands))
+    for side, valid in zip(edges.sides, edges.valid):
+        x = side[:, :, 1, :].astype(np.float64)
+        v = valid[:, :, 1]
+        w = v[..., None].astype(np.float64)
+        total += (x * w).sum(axis=1)
+        total_sq += (x * x * w).sum(axis=1)
+        count += w.sum(axis=1)
+        pair = (v[:, 1:] & v[:, :-1])[..., None].astype(np.float64)
+        step += (np.diff(x, axis=1) ** 2 * pair).sum(axis=1)
+        steps += pair.sum(axis=1)
+    mean = total / np.maximum(count, 1)
+    spread = np.maximum(total_sq / np.maximum(count, 1) - mean**2, 0.0)  # variance of the pixels
+    step = step / np.maximum(steps, 1)  # mean squared step between neighbours
+    flat = spread <= 1e-12 * np.maximum(mean**2, 1.0)
+    return np.all(flat | (step >= NOISE_LIKE**2 * spread), axis=1) | (steps[:, 0] == 0)
 
 
 def pad_to_cell(pixels, mask, width, height, offset=(0, 0)):

@@ -138,6 +138,18 @@ def _(tmp):
     return d, [], 1, "every tile"
 
 
+@case("all tiles noise-like open water")
+def _(tmp):
+    # Open water as a sensor sees it: one level plus independent noise, no
+    # ground detail on any tile.
+    d = tmp / "in"
+    d.mkdir()
+    rng = np.random.default_rng(3)
+    for k in range(6):
+        write_raster(d / f"w{k}.tif", np.clip(40 + rng.normal(0, 2, (3, 24, 24)), 0, 255).astype(np.uint8))
+    return d, [], 1, "shows ground detail"
+
+
 @case("header claims enormous dimensions")
 def _(tmp):
     d = _tiles(tmp / "in")
@@ -282,6 +294,32 @@ def test_mosaic_in_tile_folder_is_never_read_back(tmp_path):
     again = runner.invoke(app, ["solve", str(d), "-o", str(tmp_path / "second.tif")])
     assert again.exit_code == 0, again.output
     assert "placed 4 tiles" in again.output
+
+
+def _mosaic_part_tiles(folder):
+    """Tiles named as a processing chain may name them: mosaic_part_N.tif."""
+    folder.mkdir(parents=True)
+    img = skimage_image("coffee")
+    for k in range(4):
+        write_raster(folder / f"mosaic_part_{k}.tif", img[:, 100:128, 100 + 28 * k:128 + 28 * k])
+    return folder
+
+
+@pytest.mark.parametrize("target", ["output", "report"])
+def test_overwrite_never_replaces_a_tile(tmp_path, target):
+    """An output or report file that would land on a tile is refused before
+    anything is read, even with --overwrite, and every tile stays as it was."""
+    d = _mosaic_part_tiles(tmp_path / "in")
+    if target == "output":
+        args = ["-o", d / "mosaic_part_2.tif"]
+    else:  # a report folder that is the tile folder, holding a tile named preview.png
+        write_raster(d / "preview.png", skimage_image("coffee")[:, 100:128, 300:328], driver="PNG")
+        args = ["-o", tmp_path / "m.tif", "--report", d]
+    r = _run(["solve", d, *args, "--overwrite"], d)
+    assert r.exit_code == 1, r.output
+    line = _last_line(r)
+    assert "one of the tiles" in line and ("mosaic_part_2.tif" in line or "preview.png" in line), line
+    assert not (tmp_path / "m.tif").exists()
 
 
 def test_verbose_shows_the_traceback(tmp_path):
