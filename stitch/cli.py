@@ -46,6 +46,16 @@ Overwrite = Annotated[bool, typer.Option("--overwrite", help="Replace existing o
 Seed = Annotated[int, typer.Option("--seed", help="Seed of every random choice; the same seed gives the same result.")]
 
 
+class Terminated(KeyboardInterrupt):
+    """SIGTERM or SIGHUP (a scheduler, ``kill``, a closed terminal), raised
+    like Ctrl-C so that every clean-up path runs; exits with 128 + signal."""
+
+    def __init__(self, signum):
+        super().__init__(signum)
+        self.signum = signum
+        self.name = signal.Signals(signum).name
+
+
 def _setup_logging(verbose, quiet):
     level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
     logging.basicConfig(level=level, format="%(levelname)s: %(message)s", stream=sys.stderr, force=True)
@@ -70,9 +80,12 @@ def _errors(verbose, quiet=False):
         except (KeyboardInterrupt, SystemError) as exc:
             # Ctrl-C while a compiled kernel runs surfaces when it returns, as
             # a SystemError raised while the KeyboardInterrupt was pending.
-            if isinstance(exc, SystemError) and (
-                    verbose or not isinstance(exc.__context__ or exc.__cause__, KeyboardInterrupt)):
+            cause = exc.__context__ or exc.__cause__ if isinstance(exc, SystemError) else exc
+            if isinstance(exc, SystemError) and (verbose or not isinstance(cause, KeyboardInterrupt)):
                 raise
+            if isinstance(cause, Terminated):
+                typer.echo(f"terminated by {cause.name}: no partial output was left", err=True)
+                raise typer.Exit(code=128 + cause.signum) from None
             typer.echo("interrupted: no partial output was left", err=True)
             raise typer.Exit(code=130) from None
         finally:
@@ -124,31 +137,41 @@ def _deferred_interrupt(progress):
     turned into another error; here the first one is only recorded, and the
     next progress report (every tile, seam chunk and generation) raises
     KeyboardInterrupt where the library can clean up. A second Ctrl-C stops
-    at once. Outside the main thread, or when SIGINT is ignored, nothing
-    changes.
+    at once. SIGTERM and SIGHUP (a scheduler, ``kill``, a closed terminal)
+    are taken the same way and raise :class:`Terminated`. Outside the main
+    thread nothing changes, nor for a signal that is ignored (``nohup``) or
+    handled by someone else.
     """
-    if threading.current_thread() is not threading.main_thread() or \
-            signal.getsignal(signal.SIGINT) is not signal.default_int_handler:
+    if threading.current_thread() is not threading.main_thread():
         yield progress
         return
     hits = []
 
-    def on_sigint(signum, frame):
+    def interrupt():
+        return KeyboardInterrupt() if hits[0] == signal.SIGINT else Terminated(hits[0])
+
+    def on_signal(signum, frame):
         hits.append(signum)
         if len(hits) > 1:
-            raise KeyboardInterrupt
+            raise interrupt()
 
     def checked(stage, done, total, detail=""):
         if hits:
-            raise KeyboardInterrupt
+            raise interrupt()
         if progress is not None:
             progress(stage, done, total, detail)
 
-    previous = signal.signal(signal.SIGINT, on_sigint)
+    defaults = {signal.SIGINT: signal.default_int_handler}
+    previous = {}
+    for name in ("SIGINT", "SIGTERM", "SIGHUP"):
+        signum = getattr(signal, name, None)
+        if signum is not None and signal.getsignal(signum) is defaults.get(signum, signal.SIG_DFL):
+            previous[signum] = signal.signal(signum, on_signal)
     try:
         yield checked
     finally:
-        signal.signal(signal.SIGINT, previous)
+        for signum, handler in previous.items():
+            signal.signal(signum, handler)
 
 
 def _parse_pin(value):

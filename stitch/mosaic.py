@@ -7,6 +7,7 @@ time whatever the mosaic's size.
 
 from __future__ import annotations
 
+import contextlib
 import logging
 import warnings
 from pathlib import Path
@@ -151,60 +152,137 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     with atomic_path(path, overwrite=overwrite) as final_tmp:
         tmp = final_tmp.with_name(final_tmp.name + ".gtiff") if cog else final_tmp
         try:
-            with warnings.catch_warnings(), rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES,
-                                                         GDAL_TIFF_INTERNAL_MASK=True):
-                warnings.simplefilter("ignore", _GdalNotGeoreferenced)
-                with rasterio.open(tmp, "w", **profile) as dst:
-                    if has_holes and nodata is not None:
-                        _fill_nodata(dst, nodata)
-                    if masked:
-                        _clear_mask(dst)
-                    done = 0
-                    # Row-major cell order: each output block is finished
-                    # before the writer moves on, so GDAL's cache stays small.
-                    placed = np.flatnonzero(placement.placed)
-                    order = placed[np.lexsort((placement.cols[placed], placement.rows[placed]))]
-                    for i in order:
-                        pixels = orient(tileset.read(i), placement.rotations[i], placement.mirrored[i])
-                        window = Window(placement.cols[i] * tileset.width, placement.rows[i] * tileset.height,
-                                        pixels.shape[2], pixels.shape[1])
-                        dst.write(pixels, window=window)
-                        if masked:
-                            dst.write_mask(np.full(pixels.shape[1:], 255, np.uint8), window=window)
-                        done += 1
-                        if progress is not None:
-                            progress("write", done, len(order))
-                    if tileset.colorinterp and len(tileset.colorinterp) == tileset.count \
-                            and not (tileset.count == 3 and profile.get("photometric") == "rgb"):
-                        dst.colorinterp = [c if isinstance(c, ColorInterp) else ColorInterp(c)
-                                           for c in tileset.colorinterp]
-                    dst.update_tags(
-                        TIFFTAG_SOFTWARE=f"stitch {__version__}",
-                        TIFFTAG_IMAGEDESCRIPTION="Mosaic rebuilt from unreferenced tiles. " + CAUTION,
-                        STITCH_CAUTION=CAUTION,
-                        STITCH_GEOREFERENCE=georef.source,
-                    )
-                    if overviews and not cog:  # the COG driver builds its own
-                        factors = []
-                        f = 2
-                        while max(dst.width, dst.height) / f >= 256:
-                            factors.append(f)
-                            f *= 2
-                        if factors:
-                            dst.build_overviews(factors, Resampling.average)
-                            dst.update_tags(ns="rio_overview", resampling="average")
+            with rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES, GDAL_TIFF_INTERNAL_MASK=True):
+                with _gdal_failures(path, "writing"):
+                    _write_pixels(tmp, profile, tileset, placement, georef, nodata, has_holes, masked, progress)
+                if overviews and not cog:  # the COG driver builds its own
+                    _add_overviews(tmp, path)
             if cog:
-                with rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES):
+                _room_for(tmp, path, share=1.4, what="the Cloud Optimized GeoTIFF", new_file=True)
+                with rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_BYTES), _gdal_failures(path, "converting to COG"):
                     rio_copy(tmp, final_tmp, driver="COG", compress="DEFLATE", predictor=profile["predictor"],
                              overview_resampling="average", bigtiff="IF_SAFER")
-        except RasterioError as exc:
-            raise OutputError(f"cannot write mosaic {str(path)!r}: {exc}") from exc
+        except OutputError:
+            raise
+        except (RasterioError, OSError) as exc:
+            detail = str(exc).replace(f"{tmp}: ", "").replace(f"{tmp.name}: ", "")
+            raise OutputError(f"cannot write mosaic {str(path)!r}: {detail} (is the disk full or a file-size "
+                              "limit reached?)") from exc
         finally:
             if cog:
                 tmp.unlink(missing_ok=True)
     write_text_atomic(wld, world_file_text(georef.transform), overwrite=overwrite)
     log.info("wrote %s (%d x %d px) and %s", path, profile["width"], profile["height"], wld.name)
     return {"mosaic": path, "world_file": wld}
+
+
+def _write_pixels(tmp, profile, tileset, placement, georef, nodata, has_holes, masked, progress):
+    """Write every placed tile into its window of a new GeoTIFF at ``tmp``."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", _GdalNotGeoreferenced)
+        with rasterio.open(tmp, "w", **profile) as dst:
+            if has_holes and nodata is not None:
+                _fill_nodata(dst, nodata)
+            if masked:
+                _clear_mask(dst)
+            done = 0
+            # Row-major cell order: each output block is finished before the
+            # writer moves on, so GDAL's cache stays small.
+            placed = np.flatnonzero(placement.placed)
+            order = placed[np.lexsort((placement.cols[placed], placement.rows[placed]))]
+            for i in order:
+                pixels = orient(tileset.read(i), placement.rotations[i], placement.mirrored[i])
+                window = Window(placement.cols[i] * tileset.width, placement.rows[i] * tileset.height,
+                                pixels.shape[2], pixels.shape[1])
+                dst.write(pixels, window=window)
+                if masked:
+                    dst.write_mask(np.full(pixels.shape[1:], 255, np.uint8), window=window)
+                done += 1
+                if progress is not None:
+                    progress("write", done, len(order))
+            if tileset.colorinterp and len(tileset.colorinterp) == tileset.count \
+                    and not (tileset.count == 3 and profile.get("photometric") == "rgb"):
+                dst.colorinterp = [c if isinstance(c, ColorInterp) else ColorInterp(c)
+                                   for c in tileset.colorinterp]
+            dst.update_tags(
+                TIFFTAG_SOFTWARE=f"stitch {__version__}",
+                TIFFTAG_IMAGEDESCRIPTION="Mosaic rebuilt from unreferenced tiles. " + CAUTION,
+                STITCH_CAUTION=CAUTION,
+                STITCH_GEOREFERENCE=georef.source,
+            )
+
+
+def _add_overviews(tmp, path):
+    """Internal overviews (factors 2, 4, ... down to about 256 px), built only
+    on a mosaic written without error and when the disk has room for them."""
+    with rasterio.open(tmp) as src:
+        width, height = src.width, src.height
+    factors = []
+    f = 2
+    while max(width, height) / f >= 256:
+        factors.append(f)
+        f *= 2
+    if not factors:
+        return
+    _room_for(tmp, path, share=0.4, what="overviews")
+    with _gdal_failures(path, "building overviews"), rasterio.open(tmp, "r+") as dst:
+        dst.build_overviews(factors, Resampling.average)
+        dst.update_tags(ns="rio_overview", resampling="average")
+
+
+def _room_for(tmp, path, *, share, what, new_file=False):
+    """Refuse before GDAL runs out of room: ``share`` of the file's size must
+    fit on its disk and, added to it (or as a ``new_file``), under the
+    process's file-size limit."""
+    import resource
+    import shutil
+
+    size = tmp.stat().st_size
+    need = int(size * share) + 2**20
+    free = shutil.disk_usage(tmp.parent).free
+    limit = resource.getrlimit(resource.RLIMIT_FSIZE)[0]
+    if need > free:
+        raise OutputError(f"cannot write mosaic {str(path)!r}: {what} need about {need / 2**20:.0f} MB and "
+                          f"{free / 2**20:.0f} MB are free; free some space or write elsewhere")
+    if limit != resource.RLIM_INFINITY and (need if new_file else size + need) > limit:
+        raise OutputError(f"cannot write mosaic {str(path)!r}: {what} would pass this process's file-size limit "
+                          f"({limit / 2**20:.1f} MB, ulimit -f); raise the limit")
+
+
+class _Collect(logging.Handler):
+    def __init__(self):
+        super().__init__(level=logging.INFO)
+        self.messages = []
+
+    def emit(self, record):
+        msg = record.getMessage()
+        if "signalled an error" in msg:
+            self.messages.append(msg)
+
+
+@contextlib.contextmanager
+def _gdal_failures(path, stage):
+    """Turn GDAL errors rasterio only logs (a full disk found when blocks are
+    flushed, on close) into an :class:`OutputError`; GDAL's messages go to the
+    debug log, not the screen."""
+    logger = logging.getLogger("rasterio._err")
+    collect = _Collect()
+    level, propagate = logger.level, logger.propagate
+    logger.addHandler(collect)
+    logger.setLevel(logging.INFO)
+    logger.propagate = False
+    try:
+        yield
+    finally:
+        logger.removeHandler(collect)
+        logger.setLevel(level)
+        logger.propagate = propagate
+        for msg in collect.messages:
+            log.debug("GDAL while %s %s: %s", stage, path, msg)
+    if collect.messages:
+        first = collect.messages[0].split("msg=", 1)[-1].strip("'")
+        raise OutputError(f"cannot write mosaic {str(path)!r} ({stage}): GDAL reported {first!r}; "
+                          "is the disk full or a file-size limit reached?")
 
 
 def _clear_mask(dst):

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import NotGeoreferencedWarning, OptionError, TileSetError
-from .files import check_outputs
+from .files import check_outputs, output_lock, remove_stale_partials, staged
 from .control import fit_control, read_gcps
 from .georef import (
     PIXEL_SPACE,
@@ -354,7 +354,15 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
                    options.recursive)
     check_outputs([output, world_file_path(output)], overwrite=overwrite)
     check_report(report_dir, overwrite=overwrite)
+    # The run owns its output until it ends: a second run on it refuses now
+    # rather than racing this one.
+    with output_lock(output):
+        remove_stale_partials([output, world_file_path(output), *report_paths(report_dir).values()])
+        return _solve(tiles_dir, output, options, report_dir, overwrite, progress)
 
+
+def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
+    """The body of :func:`solve`, holding the output's lock."""
     timings, notes = {}, []
     t0 = time.perf_counter()
     tileset = read_tileset(tiles_dir, recursive=options.recursive, exclude=[output], progress=progress,
@@ -401,24 +409,22 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
         warnings.warn(msg, UserWarning, stacklevel=2)
         notes.append(msg)
 
-    # A run that fails while writing removes what it wrote, so no output of a
-    # failed run looks valid (each file is also written atomically).
-    planned = [output, world_file_path(output), *report_paths(report_dir).values()]
-    before = {p: p.exists() for p in planned}
+    # The mosaic, world file and report land as one set: each is written
+    # under a temporary name, and all are renamed once every one is
+    # complete. A failure leaves the old set (with --overwrite) intact and
+    # nothing of this run behind.
     report_existed = report_dir.exists()
     try:
-        t0 = time.perf_counter()
-        outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite, cog=options.cog,
-                               progress=progress)
-        timings["write"] = time.perf_counter() - t0
-        outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
-        result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes), fit,
-                             sides, frozenset(pins.tiles), table.measure, verdict, review)
-        write_report(result, report_dir, overwrite=overwrite)
+        with staged(overwrite=overwrite):
+            t0 = time.perf_counter()
+            outputs = write_mosaic(tileset, placement, georef, output, overwrite=overwrite, cog=options.cog,
+                                   progress=progress)
+            timings["write"] = time.perf_counter() - t0
+            outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
+            result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes),
+                                 fit, sides, frozenset(pins.tiles), table.measure, verdict, review)
+            write_report(result, report_dir, overwrite=overwrite)
     except BaseException:
-        for p in planned:
-            if p.exists() and not before[p]:
-                p.unlink()
         if not report_existed and report_dir.is_dir() and not any(report_dir.iterdir()):
             report_dir.rmdir()
         raise

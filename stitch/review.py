@@ -21,6 +21,7 @@ from rasterio.enums import Resampling
 from shapely.geometry import Polygon, mapping
 from shapely.geometry.polygon import orient as orient_ring
 
+from .files import readable_path
 from .mosaic import mosaic_size
 
 __all__ = ["convergence_png", "footprints", "index_html", "preview_png", "tiles_geojson"]
@@ -150,7 +151,7 @@ def preview_png(result):
     full_w, full_h = mosaic_size(ts, p)
     f = min(1.0, PREVIEW_MAX / max(full_w, full_h))
     w, h = max(1, int(round(full_w * f))), max(1, int(round(full_h * f)))
-    with rasterio.open(result.outputs["mosaic"]) as src:
+    with rasterio.open(readable_path(result.outputs["mosaic"])) as src:
         data = src.read(out_shape=(src.count, h, w), resampling=Resampling.average)
         valid = src.dataset_mask(out_shape=(h, w)) > 0
     rgb, _ = _display(data, valid)
