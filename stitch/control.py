@@ -75,6 +75,16 @@ class GcpFit:
     outliers: tuple
 
 
+#: Largest coordinate a control file may hold: beyond any CRS's extent in
+#: metres, feet or degrees (our bound, no source), and far from float overflow.
+MAX_COORDINATE = 1e12
+
+#: A control fit whose RMSE exceeds this many tile sizes is refused: the
+#: points contradict each other (a duplicate with other coordinates, a point
+#: on the wrong tile), whatever the placement (our choice, no source).
+MAX_RMSE_TILES = 1.0
+
+
 def read_gcps(path):
     """Read a ground control CSV (``tile,col,row,x,y``).
 
@@ -107,6 +117,9 @@ def read_gcps(path):
             raise GeoreferenceError(f"{path.name} line {lineno}: col, row, x and y must be numbers") from None
         if not all(map(math.isfinite, values)):
             raise GeoreferenceError(f"{path.name} line {lineno}: values must be finite numbers")
+        if max(abs(v) for v in values) >= MAX_COORDINATE:
+            raise GeoreferenceError(f"{path.name} line {lineno}: a value of {max(values, key=abs):.3g} is beyond any "
+                                    f"map coordinate (at most {MAX_COORDINATE:.0e} in size); check the columns")
         points.append(ControlPoint((row["tile"] or "").strip(), *values))
     if not points:
         raise GeoreferenceError(f"ground control file {path.name!r} holds no points")
@@ -205,6 +218,7 @@ def fit_control(points, placement, width, height, *, similarity=False):
     # noise of the least squares; zero them so north-up stays north-up.
     if abs(transform.b) < 1e-9 * abs(transform.a) and abs(transform.d) < 1e-9 * abs(transform.e):
         transform = Affine(transform.a, 0.0, transform.c, 0.0, transform.e, transform.f)
+    _check_fit(transform, src, dst, width, height)
     fitted = np.array([transform @ tuple(s) for s in src])
     res_map = np.hypot(*(fitted - dst).T)
     px = math.sqrt(abs(transform.a * transform.e - transform.b * transform.d))
@@ -221,4 +235,37 @@ def fit_control(points, placement, width, height, *, similarity=False):
             if res_map[i] > 3 * others and res_px[i] > 0.01:
                 outliers.append(i)
     outliers = tuple(outliers)
-    return GcpFit(transform, method, res_map, res_px, rmse_map, float(np.sqrt(np.mean(res_px**2))), outliers)
+    rmse_px = float(np.sqrt(np.mean(res_px**2)))
+    if rmse_px > MAX_RMSE_TILES * max(width, height):
+        worst = int(np.argmax(res_px))
+        raise GeoreferenceError(
+            f"the control points contradict each other: RMSE {rmse_px:.3g} px, more than a tile "
+            f"({max(width, height)} px); point {worst + 1} ({points[worst].tile}) is {res_px[worst]:.3g} px off the "
+            "fit: check for duplicates with other coordinates and points on the wrong tile")
+    return GcpFit(transform, method, res_map, res_px, rmse_map, rmse_px, outliers)
+
+
+def _check_fit(transform, src, dst, width, height):
+    """Refuse a fit that no survey could mean, with the numbers.
+
+    A pixel/line image with map y pointing up has a negative determinant
+    (rows run south: GDAL's north-up geotransform, common practice, no
+    source); a positive one mirrors the mosaic, as x and y given in the wrong
+    order do. A pixel size many orders below the map points' own precision
+    means the points collapse onto one map position.
+    """
+    det = transform.a * transform.e - transform.b * transform.d
+    if not math.isfinite(det):
+        raise GeoreferenceError("the control fit is not finite; check the coordinates")
+    pixel = math.sqrt(abs(det))
+    spread_px = float(np.ptp(src, axis=0).max())
+    spread_map = float(np.ptp(dst, axis=0).max())
+    scale = max(1.0, float(np.abs(dst).max()))
+    if spread_map <= 1e-9 * scale or pixel * spread_px <= 1e-9 * scale:
+        raise GeoreferenceError(
+            f"the control points map {spread_px:.0f} px of the mosaic onto {spread_map:.3g} map units (pixel size "
+            f"{pixel:.3g}): they sit at one map position; check their x and y")
+    if det > 0:
+        raise GeoreferenceError(
+            "the control points give a mirrored mosaic (the fit's determinant is positive: map y grows with the "
+            "rows); x and y are probably swapped (for EPSG:4326, x is longitude and y latitude)")

@@ -134,6 +134,9 @@ def parse_crs(value):
     """
     if value is None or isinstance(value, CRS):
         return value
+    text = str(value).strip()
+    if text.isdigit():
+        raise OptionError(f"--crs {value!r} is a bare number; write the authority too, as EPSG:{text}")
     try:
         return CRS.from_user_input(value)
     except CRSError as exc:

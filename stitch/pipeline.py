@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import NotGeoreferencedWarning, OptionError, TileSetError
+from .errors import GeoreferenceError, NotGeoreferencedWarning, OptionError, TileSetError
 from .files import check_outputs, output_lock, remove_stale_partials, staged
 from .control import fit_control, read_gcps
 from .georef import (
@@ -36,7 +36,7 @@ from .report import check_report, report_paths, write_report
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
-from .tiles import MAX_TILE_PIXELS, RASTER_SUFFIXES, is_own_output, read_tileset
+from .tiles import MAX_TILE_PIXELS, RASTER_SUFFIXES, find_tiles, is_own_output, read_tileset
 
 __all__ = ["SolveOptions", "SolveResult", "default_report_dir", "place_tiles", "solve"]
 
@@ -174,6 +174,75 @@ def _inside(path, folder):
         return True
     except ValueError:
         return False
+
+
+#: Largest grid, as a multiple of the tile count (a larger one is a typo).
+MAX_GRID_FACTOR = 10
+
+#: Most memory the evolutionary search's populations may take (an estimate).
+MAX_SEARCH_BYTES = 4 * 2**30
+
+
+def check_before_reading(tiles_dir, options):
+    """Validate options against the folder before any pixel is read.
+
+    The CRS, the control file (its tiles exist, its points lie inside them),
+    the pins (their tiles exist), the grid (at most :data:`MAX_GRID_FACTOR`
+    times the tile count, and holding the pins) and the search's population
+    (its memory), so that a mistake costs seconds, not a whole search.
+    """
+    spec = options.georef
+    parse_crs(spec.crs)
+    folder = Path(tiles_dir)
+    paths = find_tiles(folder, recursive=options.recursive, quiet=True)
+    names = {p.relative_to(folder).as_posix(): p for p in paths}
+    n = len(names)
+    if n == 0:
+        return  # read_tileset says why
+    for name, row, col in options.pins:
+        if name not in names:
+            raise OptionError(f"--pin names tile {name!r}, which is not in {str(folder)!r}")
+    limit = MAX_GRID_FACTOR * max(n, 2)
+    if options.grid is not None and options.grid[0] * options.grid[1] > limit:
+        r, c = options.grid
+        raise OptionError(f"--grid {r}x{c} has {r * c} cells for {n} tiles (more than {MAX_GRID_FACTOR} x the tile "
+                          "count); check the grid")
+    if options.pins and options.grid is None:
+        rows = max(int(r) for _, r, _ in options.pins) + 1
+        cols = max(int(c) for _, _, c in options.pins) + 1
+        if rows * cols > limit:
+            raise OptionError(f"the pins span {rows}x{cols} cells, more than a grid of {n} tiles can hold "
+                              f"(at most {MAX_GRID_FACTOR} x the tile count); check them or give --grid")
+    cells = options.grid[0] * options.grid[1] if options.grid is not None else n
+    population = options.search.population
+    need = 4 * population * cells * 8  # tiles and orientations of parents and children, int64
+    if need > MAX_SEARCH_BYTES:
+        most = max(1, MAX_SEARCH_BYTES // (4 * cells * 8))
+        raise OptionError(f"--population {population} needs about {need / 2**30:.0f} GB for {cells} cells; "
+                          f"give at most {most} (0 chooses by tile count)")
+    if spec.gcps is not None:
+        _check_control_file(spec.gcps, names)
+
+
+def _check_control_file(path, tiles):
+    """Every control point names a tile of the folder and lies inside it."""
+    import rasterio
+
+    sizes = {}
+    for k, p in enumerate(read_gcps(path), start=1):
+        if p.tile not in tiles:
+            raise GeoreferenceError(f"control point {k} in {Path(path).name} names tile {p.tile!r}, which is not in "
+                                    "the tile folder; check the name")
+        if p.tile not in sizes:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                with rasterio.open(tiles[p.tile]) as src:
+                    sizes[p.tile] = (src.width, src.height)
+        w, h = sizes[p.tile]
+        if not (0 <= p.col <= w and 0 <= p.row <= h):
+            raise GeoreferenceError(f"control point {k} in {Path(path).name} lies at column {p.col:g}, row "
+                                    f"{p.row:g} of tile {p.tile!r}, outside its {w}x{h} pixels; col and row are "
+                                    "pixel/line inside the tile")
 
 
 def _refuse_inputs(paths, tiles_dir, recursive):
@@ -354,6 +423,7 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
                    options.recursive)
     check_outputs([output, world_file_path(output)], overwrite=overwrite)
     check_report(report_dir, overwrite=overwrite)
+    check_before_reading(tiles_dir, options)
     # The run owns its output until it ends: a second run on it refuses now
     # rather than racing this one.
     with output_lock(output):

@@ -256,7 +256,7 @@ def _is_own_mosaic(src):
     return "STITCH_CAUTION" in src.tags()
 
 
-def find_tiles(folder, *, recursive=False, exclude=()):
+def find_tiles(folder, *, recursive=False, exclude=(), quiet=False):
     """Raster files in ``folder`` by their ending, sorted by name.
 
     Hidden files, stitch's own outputs (see :func:`is_own_output`) and files
@@ -269,6 +269,8 @@ def find_tiles(folder, *, recursive=False, exclude=()):
         Descend into sub-folders.
     exclude : iterable of path-like, optional
         Files never taken as tiles (e.g. the run's own outputs).
+    quiet : bool, optional
+        Do not log the files skipped.
 
     Returns
     -------
@@ -290,7 +292,7 @@ def find_tiles(folder, *, recursive=False, exclude=()):
         if path.suffix.lower() == ".png" and is_own_output(path):
             continue
         found.append(path)
-    if skipped:
+    if skipped and not quiet:
         log.warning("skipping %d file(s) that are not rasters: %s", len(skipped), ", ".join(sorted(skipped)[:5]))
     return sorted(found, key=lambda p: p.relative_to(folder).as_posix())
 

@@ -151,5 +151,5 @@ def test_control_point_on_unknown_tile(tmp_path, tiles_dir):
     f = tmp_path / "gcp.csv"
     f.write_text("tile,col,row,x,y\nnope.tif,1,1,0,0\nnope.tif,2,2,1,1\n")
     opts = SolveOptions(georef=GeorefSpec(gcps=str(f), crs="EPSG:32630"))
-    with pytest.raises(GeoreferenceError, match="'nope.tif', which is not placed"):
+    with pytest.raises(GeoreferenceError, match="names tile 'nope.tif', which is not in the tile folder"):
         solve(tiles_dir, tmp_path / "m.tif", options=opts)

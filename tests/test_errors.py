@@ -182,7 +182,68 @@ def _(tmp):
 @case("control point on an unknown tile")
 def _(tmp):
     text = "tile,col,row,x,y\nnope.tif,1,1,3,4\nt0.tif,5,5,9,9\n"
-    return (*_with_gcps(tmp, text), 1, "'nope.tif', which is not placed")
+    return (*_with_gcps(tmp, text), 1, "names tile 'nope.tif', which is not in the tile folder")
+
+
+@case("control point outside its tile")
+def _(tmp):
+    text = "tile,col,row,x,y\nt0.tif,1000.5,3,3,4\nt1.tif,5,5,9,9\nt2.tif,1,9,4,4\n"
+    return (*_with_gcps(tmp, text), 1, "lies at column 1000.5, row 3 of tile 't0.tif', outside its 28x28 pixels")
+
+
+@case("grid far larger than the tile count")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--grid", "1x1000000"], 1, "more than 10 x the tile count"
+
+
+@case("pin far outside any grid, no --grid")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--pin", "t0.tif=50,50"], 1, "the pins span 51x51 cells"
+
+
+@case("pin names no tile")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--pin", "nope.tif=0,0"], 1, "--pin names tile 'nope.tif'"
+
+
+@case("population beyond memory")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--population", "100000000"], 1, "--population 100000000 needs about"
+
+
+@case("time limit not a number")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--time-limit", "nan"], 1, "--time-limit must be a positive number"
+
+
+@case("CRS as a bare number")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--bounds", 0, 0, 1, 1, "--crs", "32630"], 1, "write the authority too, as EPSG:32630"
+
+
+@case("control points at one map position")
+def _(tmp):
+    text = "tile,col,row,x,y\nt0.tif,1,1,500,600\nt0.tif,20,20,500,600\n"
+    return (*_with_gcps(tmp, text), 1, "they sit at one map position")
+
+
+@case("control points with x and y swapped")
+def _(tmp):
+    # Map x falls with the rows and map y grows with the columns: a mirror.
+    text = "tile,col,row,x,y\nt0.tif,0,0,100,200\nt0.tif,0,28,72,200\nt0.tif,28,0,100,228\n"
+    return (*_with_gcps(tmp, text), 1, "mirrored mosaic")
+
+
+@case("a control point repeated with other coordinates")
+def _(tmp):
+    text = ("tile,col,row,x,y\nt0.tif,0,0,0,0\nt0.tif,28,0,28,0\nt0.tif,0,28,0,-28\n"
+            "t0.tif,0,0,5000,5000\n")
+    return (*_with_gcps(tmp, text), 1, "the control points contradict each other")
+
+
+@case("control coordinates beyond any map")
+def _(tmp):
+    return (*_with_gcps(tmp, "tile,col,row,x,y\nt0.tif,1,1,1e300,4\nt0.tif,5,5,9,9\n"), 1, "beyond any map coordinate")
 
 
 @case("collinear control points")
@@ -252,6 +313,31 @@ def test_error_matrix(tmp_path, name):
     elif output.parent.is_dir():
         assert not output.exists()
     assert not list(tmp_path.rglob(f"*{'stitch-partial'}*"))
+
+
+@pytest.mark.parametrize("extra", [
+    ["--bounds", "0", "0", "1", "1", "--crs", "EPSG:0"],
+    ["--gcps", "GCP", "--crs", "EPSG:32630"],
+    ["--pin", "nope.tif=0,0"],
+    ["--grid", "1x1000000"],
+    ["--population", "100000000"],
+], ids=["CRS", "control file", "pin", "grid", "population"])
+def test_bad_options_are_refused_before_any_pixel_is_read(tmp_path, monkeypatch, extra):
+    """A mistake costs seconds, not a whole search: these are refused before
+    the tiles are read (reading them here would fail the test)."""
+    import stitch.pipeline
+
+    def no_reading(*args, **kwargs):
+        raise AssertionError("tiles were read before the options were checked")
+
+    monkeypatch.setattr(stitch.pipeline, "read_tileset", no_reading)
+    d = _tiles(tmp_path / "in")
+    gcp = tmp_path / "gcp.csv"
+    gcp.write_text("tile,col,row,x,y\nt0.tif,99,1,3,4\n")
+    r = runner.invoke(app, ["solve", str(d), "-o", str(tmp_path / "m.tif"),
+                            *[str(gcp) if a == "GCP" else a for a in extra]])
+    assert r.exit_code == 1, r.output
+    assert r.output.strip().splitlines()[-1].startswith("error:"), r.output
 
 
 def test_non_raster_files_are_skipped_with_a_note(tmp_path):

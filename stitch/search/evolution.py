@@ -33,6 +33,11 @@ WINDOW_ROUNDS = 50
 NEW_BEST_WINDOW_ROUNDS = 1
 
 
+#: Placements made between two checks for Ctrl-C and the time limit (a huge
+#: --population must not make the search deaf to either).
+CHUNK = 512
+
+
 def default_sizes(n):
     """Population size and most generations for ``n`` tiles."""
     population = int(min(200, max(30, 8 * math.sqrt(n))))
@@ -129,6 +134,13 @@ class Evolution:
         if not past(self.deadline, 0.5, self.start):
             problem.polish(population[0], settings.polish_passes, windows=WINDOW_ROUNDS)
         while len(population) < self.size:
+            if len(population) % CHUNK == 0:
+                self._report("filling the population")  # Ctrl-C takes effect here
+                if past(self.deadline, 0.5, self.start):
+                    log.info("time limit: population of %d instead of %d", len(population), self.size)
+                    self.size = len(population)
+                    self.elite = max(1, min(self.settings.elite, self.size - 1))
+                    break
             population.append(problem.random(self.shape, self.rng))
         self.population = population
         self.costs, self.raws = problem.costs_of(population)
@@ -198,10 +210,16 @@ class Evolution:
         rseeds = rng.integers(0, 2**31 - 1, size=size - elite)
         # Children depend only on their parents and their own seed, so running
         # them on both cores changes no result.
-        for child, (cost, raw) in self.pool.map(self._breed, zip(winners, starts, rseeds)):
-            pop.append(child)
-            costs.append(cost)
-            raws.append(raw)
+        jobs = list(zip(winners, starts, rseeds))
+        for k in range(0, len(jobs), CHUNK):
+            if k:
+                self._report("breeding")  # Ctrl-C takes effect between chunks
+                if past(self.deadline):
+                    return  # out of time: the generation is dropped, the population kept
+            for child, (cost, raw) in self.pool.map(self._breed, jobs[k:k + CHUNK]):
+                pop.append(child)
+                costs.append(cost)
+                raws.append(raw)
         children = np.argsort(costs[elite:], kind="stable")[: self.settings.polish] + elite
         for c, (cost, raw) in self.pool.map(lambda c: self._polish_child(pop, c), children):
             costs[c], raws[c] = cost, raw

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import time
 from dataclasses import dataclass, field
 from typing import NamedTuple
@@ -84,8 +85,8 @@ class SearchSettings:
     def __post_init__(self):
         if self.population < 0 or self.generations < 0 or self.patience < 1:
             raise OptionError("population and generations must be >= 0 and patience >= 1")
-        if self.time_limit is not None and self.time_limit <= 0:
-            raise OptionError(f"time limit must be positive seconds, not {self.time_limit}")
+        if self.time_limit is not None and not (math.isfinite(self.time_limit) and self.time_limit > 0):
+            raise OptionError(f"--time-limit must be a positive number of seconds, not {self.time_limit}")
 
     def deadline(self):
         """``time.perf_counter()`` value at which the time limit runs out, or None."""
