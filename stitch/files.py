@@ -176,10 +176,10 @@ def check_outputs(paths, *, overwrite=False):
             raise OutputError(f"folder {str(folder)!r} for output {path.name!r} does not exist; create it first")
         if not os.access(folder, os.W_OK):
             raise OutputError(f"folder {str(folder)!r} is not writable; choose another output path")
-        if path.exists() and not overwrite:
-            raise OutputExistsError(f"output {str(path)!r} exists and won't be replaced without --overwrite")
         if path.is_dir():
             raise OutputError(f"output {str(path)!r} is a folder; give a file name")
+        if path.exists() and not overwrite:
+            raise OutputExistsError(f"output {str(path)!r} exists and won't be replaced without --overwrite")
 
 
 @contextlib.contextmanager

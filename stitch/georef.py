@@ -281,11 +281,18 @@ def world_file_path(raster_path):
     --------
     >>> world_file_path("mosaic.tif").name
     'mosaic.tfw'
+
+    An upper-case extension gets an upper-case ``W`` (GDAL looks for both
+    cases of the whole ending, not a mix):
+
+    >>> world_file_path("UP.TIF").name
+    'UP.TFW'
     """
     p = Path(raster_path)
     ext = p.suffix.lstrip(".")
     if len(ext) >= 2:
-        return p.with_suffix(f".{ext[0]}{ext[-1]}w")
+        w = "W" if ext.isupper() else "w"
+        return p.with_suffix(f".{ext[0]}{ext[-1]}{w}")
     return p.with_suffix(".wld")
 
 

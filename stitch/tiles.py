@@ -378,12 +378,17 @@ def _read_prj(path):
 def _tile_georef(path, src):
     """Georeferencing GDAL found on an open tile, or None."""
     t = src.transform
+    sidecars = [path.with_suffix(s) for s in _WORLD_SUFFIXES.get(path.suffix.lower(), ())]
+    sidecars += [path.with_suffix(s.upper()) for s in _WORLD_SUFFIXES.get(path.suffix.lower(), ())]
     if t.is_identity and src.crs is None:
+        broken = next((p for p in sidecars if p.is_file()), None)
+        if broken is not None:
+            log.warning("ignoring world file %s: GDAL could not read it (six numbers, one a line, with non-zero "
+                        "pixel sizes); tile %s is treated as unreferenced", broken.name, path.name)
         return None
     if not _is_usable_transform(t):
         log.warning("tile %s has a corrupt geotransform %s; treating it as unreferenced", path.name, tuple(t)[:6])
         return None
-    sidecars = [path.with_suffix(s) for s in _WORLD_SUFFIXES.get(path.suffix.lower(), ())]
     sidecar = next((p for p in sidecars if p.is_file()), None)
     crs = src.crs or _read_prj(path)
     if sidecar is not None and not (path.suffix.lower() in (".tif", ".tiff") and src.tags(ns="")):

@@ -262,6 +262,12 @@ def _(tmp):
     return _tiles(tmp / "in"), {"output": tmp / "afile" / "m.tif"}, 1, "does not exist"
 
 
+@case("output is an existing folder")
+def _(tmp):
+    (tmp / "out.tif").mkdir()
+    return _tiles(tmp / "in"), {"output": tmp / "out.tif"}, 1, "is a folder; give a file name"
+
+
 @case("output inside the tile folder with a tile-like name")
 def _(tmp):
     d = _tiles(tmp / "in")
@@ -304,12 +310,15 @@ def test_error_matrix(tmp_path, name):
     if isinstance(extra, dict):
         output, extra = extra["output"], []
     existing = output.read_bytes() if output.is_file() else None
+    was_folder = output.is_dir()
     r = _run(["solve", folder, "-o", output, *extra], tmp_path if folder.parent == tmp_path else folder)
     assert r.exit_code == code, r.output
     line = _last_line(r)
     assert message in line, line
     if existing is not None:
         assert output.read_bytes() == existing
+    elif was_folder:
+        assert output.is_dir() and not any(output.iterdir())
     elif output.parent.is_dir():
         assert not output.exists()
     assert not list(tmp_path.rglob(f"*{'stitch-partial'}*"))
@@ -338,6 +347,35 @@ def test_bad_options_are_refused_before_any_pixel_is_read(tmp_path, monkeypatch,
                             *[str(gcp) if a == "GCP" else a for a in extra]])
     assert r.exit_code == 1, r.output
     assert r.output.strip().splitlines()[-1].startswith("error:"), r.output
+
+
+def test_a_broken_world_file_is_named(tmp_path):
+    """GDAL ignores a world file it cannot parse (here five lines, one of
+    them text); stitch says which one instead of staying silent."""
+    d = _tiles(tmp_path / "in", n=4)
+    (d / "t2.tfw").write_text("1\n0\n0\nabc\n5\n")
+    r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
+    assert r.exit_code == 0, r.output
+    assert "ignoring world file t2.tfw" in r.output
+
+
+def test_an_upper_case_output_gets_a_world_file_gdal_finds(tmp_path):
+    d = _tiles(tmp_path / "in", n=4)
+    r = _run(["solve", d, "-o", tmp_path / "UP.TIF", "--origin", "500000", "4100000", "--pixel-size", "1",
+              "--crs", "EPSG:32633"], d)
+    assert r.exit_code == 0, r.output
+    assert (tmp_path / "UP.TFW").is_file()
+    import rasterio  # GDAL reads a PNG copy's georeferencing from the sidecar it looks for
+
+    with rasterio.open(tmp_path / "UP.TIF") as src:
+        transform = src.transform
+    from rasterio.shutil import copy
+
+    copy(tmp_path / "UP.TIF", tmp_path / "COPY.PNG", driver="PNG")
+    (tmp_path / "COPY.PNG.aux.xml").unlink(missing_ok=True)
+    (tmp_path / "COPY.PGW").write_bytes((tmp_path / "UP.TFW").read_bytes())
+    with rasterio.open(tmp_path / "COPY.PNG") as png:
+        assert png.transform.almost_equals(transform)
 
 
 def test_non_raster_files_are_skipped_with_a_note(tmp_path):
