@@ -21,6 +21,7 @@ from pathlib import Path
 
 import affine
 import numpy as np
+import rasterio
 import rasterio.transform
 from affine import Affine
 from rasterio.crs import CRS
@@ -138,7 +139,8 @@ def parse_crs(value):
     if text.isdigit():
         raise OptionError(f"--crs {value!r} is a bare number; write the authority too, as EPSG:{text}")
     try:
-        return CRS.from_user_input(value)
+        with rasterio.Env():  # GDAL's messages go to the log, not the screen
+            return CRS.from_user_input(value)
     except CRSError as exc:
         raise OptionError(f"--crs {value!r} is not a CRS GDAL knows ({exc}); give e.g. EPSG:32633") from None
 

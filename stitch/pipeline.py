@@ -252,12 +252,20 @@ def _refuse_inputs(paths, tiles_dir, recursive):
     folder = Path(tiles_dir)
     for path in paths:
         path = Path(path)
-        if not path.is_file() or path.suffix.lower() not in RASTER_SUFFIXES:
+        if not path.is_file():
             continue
         inside = path.resolve().parent == folder.resolve() or (recursive and _inside(path, folder))
-        if inside and not is_own_output(path):
+        if not inside:
+            continue
+        if path.suffix.lower() in RASTER_SUFFIXES and not is_own_output(path):
             raise OptionError(f"{str(path)!r} is one of the tiles in {str(folder)!r}; writing there would destroy "
                               "an input (--overwrite never replaces tiles): choose another output or report folder")
+        # A world file or .prj beside a tile belongs to that tile.
+        owners = [path.with_suffix(e) for ext in RASTER_SUFFIXES for e in (ext, ext.upper())]
+        owner = next((o for o in owners if o.is_file() and not is_own_output(o)), None)
+        if owner is not None and path.suffix.lower() not in RASTER_SUFFIXES:
+            raise OptionError(f"{str(path)!r} is the sidecar of tile {owner.name!r} in {str(folder)!r}; writing "
+                              "there would destroy an input (--overwrite never replaces it): choose another output")
 
 
 def _duplicate_notes(tileset):

@@ -429,20 +429,23 @@ def _mosaic_part_tiles(folder):
     return folder
 
 
-@pytest.mark.parametrize("target", ["output", "report"])
+@pytest.mark.parametrize("target", ["output", "report", "world file"])
 def test_overwrite_never_replaces_a_tile(tmp_path, target):
     """An output or report file that would land on a tile is refused before
     anything is read, even with --overwrite, and every tile stays as it was."""
     d = _mosaic_part_tiles(tmp_path / "in")
     if target == "output":
         args = ["-o", d / "mosaic_part_2.tif"]
+    elif target == "world file":  # mosaic_part_2.tiff would write mosaic_part_2.tfw, the tile's world file
+        (d / "mosaic_part_2.tfw").write_text("1\n0\n0\n-1\n500000.5\n4099999.5\n")
+        args = ["-o", d / "mosaic_part_2.tiff"]
     else:  # a report folder that is the tile folder, holding a tile named preview.png
         write_raster(d / "preview.png", skimage_image("coffee")[:, 100:128, 300:328], driver="PNG")
         args = ["-o", tmp_path / "m.tif", "--report", d]
     r = _run(["solve", d, *args, "--overwrite"], d)
     assert r.exit_code == 1, r.output
     line = _last_line(r)
-    assert "one of the tiles" in line and ("mosaic_part_2.tif" in line or "preview.png" in line), line
+    assert ("one of the tiles" in line or "sidecar of tile" in line) and "mosaic_part_2" in line or "preview.png" in line, line
     assert not (tmp_path / "m.tif").exists()
 
 
