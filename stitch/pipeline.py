@@ -357,6 +357,15 @@ def place_tiles(tileset, options=None, *, progress=None):
     return placement.with_confidence(conf), result, table, pins
 
 
+def _doubtful_anchors(placement, tileset, pins, threshold):
+    """Names of anchor tiles (pinned by their surviving georeferencing) whose
+    seams do not hold where the anchors put them."""
+    if pins.absolute or not pins.tiles:
+        return []
+    return [tileset.names[i] for i in pins.tiles
+            if not tileset.blank[i] and np.nan_to_num(placement.confidence[i], nan=0.0) < threshold]
+
+
 def _edge_evidence(shape, tileset):
     """Grid evidence (as :meth:`stitch.search.shapes.ShapeChoice.evidence`)
     when the partial edge tiles fixed the grid."""
@@ -479,6 +488,13 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
         notes.append(msg)
     if tileset.blank.any():
         notes.append(f"{int(tileset.blank.sum())} blank tile(s) placed with no evidence; check them")
+    doubtful = _doubtful_anchors(placement, tileset, pins, options.confidence_threshold)
+    if doubtful:
+        msg = (f"anchor tile(s) {', '.join(doubtful)} sit where their surviving georeferencing puts them, but their "
+               "edges do not fit there (confidence below the threshold): check their GeoTIFF tags or world files; "
+               "one tile off moves the whole mosaic")
+        warnings.warn(msg, UserWarning, stacklevel=2)
+        notes.append(msg)
     ev = search.shape_evidence
     if ev is not None and ev["thin"]:
         r, c = ev["runner_up"]

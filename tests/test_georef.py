@@ -235,3 +235,23 @@ def test_corrupt_world_file_makes_the_tile_unreferenced(tmp_path, caplog):
     with caplog.at_level("WARNING"):
         ts = read_tileset(tmp_path / "t")
     assert all(g is None for g in ts.georefs)
+
+
+def test_an_anchor_one_tile_off_is_named(tmp_path, utm_raster):
+    """Two anchors whose tags agree on one tile grid, but one sits a whole
+    tile east of where it belongs: its seams do not hold there, and the run
+    names it instead of trusting it quietly."""
+    from affine import Affine
+
+    from stitch.pipeline import solve
+    from stitch.puzzles import cut_raster
+
+    cut = cut_raster(utm_raster, tmp_path / "t", 28, shuffle=True, strip_georef=True, keep_georef=2, seed=5,
+                     key_path=tmp_path / "k.csv")
+    moved = cut.georeferenced[0]
+    with rasterio.open(tmp_path / "t" / moved, "r+") as dst:
+        t = dst.transform
+        dst.transform = Affine(t.a, t.b, t.c + 28 * t.a, t.d, t.e, t.f)  # one tile width east
+    with pytest.warns(UserWarning, match=rf"anchor tile\(s\) {moved} sit where"):
+        result = solve(tmp_path / "t", tmp_path / "m.tif")
+    assert any(moved in note for note in result.warnings)
