@@ -71,15 +71,44 @@ def test_world_file_lines_follow_gdal_convention():
         pytest.param(Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0), id="north-up metres"),
         pytest.param(Affine(1e-5, 0.0, -122.4, 0.0, -1e-5, 37.8), id="north-up degrees"),
         pytest.param(Affine(0.3, 0.1, 1000.0, 0.1, -0.3, 2000.0), id="rotated"),
+        # b != d and |a| != |e|: a writer that swapped lines B and D, or A and
+        # E, would be caught here (with b == d it would not).
+        pytest.param(Affine(0.3, 0.12, 1000.0, -0.05, -0.6, 2000.0), id="asymmetric rotation, non-square pixels"),
     ],
 )
-def test_gdal_reads_our_world_file_beside_png(tmp_path, transform):
-    """GDAL's PNG driver reads the .pgw sidecar; it must return our transform."""
+@pytest.mark.parametrize("driver, ext", [("PNG", "png"), ("JPEG", "jpg")])
+def test_gdal_reads_our_world_file(tmp_path, transform, driver, ext):
+    """GDAL's PNG and JPEG drivers read the sidecar (.pgw, .jgw) themselves
+    (GDAL's world-file reading, through rasterio): they must return our
+    transform. stitch's own reader is checked separately below."""
+    img = write_raster(tmp_path / f"t.{ext}", skimage_image("camera")[:, :32, :32], driver=driver)
+    world_file_path(img).write_text(world_file_text(transform))
+    with rasterio.open(img) as src:
+        assert tuple(src.transform) == pytest.approx(tuple(transform), abs=1e-9)
+
+
+def test_our_world_file_reader_agrees_with_gdal(tmp_path):
+    transform = Affine(0.3, 0.12, 1000.0, -0.05, -0.6, 2000.0)
     png = write_raster(tmp_path / "t.png", skimage_image("camera")[:, :32, :32], driver="PNG")
     world_file_path(png).write_text(world_file_text(transform))
     with rasterio.open(png) as src:
-        assert src.transform.almost_equals(transform, precision=1e-9)
-    assert read_world_file(world_file_path(png)).almost_equals(transform, precision=1e-9)
+        gdal = src.transform
+    assert tuple(read_world_file(world_file_path(png))) == pytest.approx(tuple(gdal), abs=1e-9)
+
+
+def test_the_mosaics_world_file_is_read_by_gdal_as_the_mosaics_transform(tmp_path, tiles_dir):
+    """The .tfw a solve writes, beside a PNG copy of the mosaic, gives GDAL
+    the GeoTIFF's own transform (read from its tags)."""
+    from rasterio.shutil import copy
+
+    result = solve(tiles_dir, tmp_path / "m.tif", options=SolveOptions(georef=GeorefSpec(
+        origin=(431000.0, 5800000.0), pixel_size=(0.5, 0.25), crs="EPSG:32630")))
+    copy(result.outputs["mosaic"], tmp_path / "copy.png", driver="PNG")
+    (tmp_path / "copy.png.aux.xml").unlink(missing_ok=True)  # GDAL's own sidecar would win over the world file
+    (tmp_path / "copy.pgw").write_bytes(result.outputs["world_file"].read_bytes())
+    with rasterio.open(result.outputs["mosaic"]) as tif, rasterio.open(tmp_path / "copy.png") as png:
+        assert tuple(png.transform) == pytest.approx(tuple(tif.transform), abs=1e-9)
+        assert tif.transform.e == -0.25 and tif.transform.a == 0.5  # non-square pixels as given
 
 
 def test_world_file_reader_refuses_garbage(tmp_path):
@@ -235,6 +264,7 @@ def test_corrupt_world_file_makes_the_tile_unreferenced(tmp_path, caplog):
     with caplog.at_level("WARNING"):
         ts = read_tileset(tmp_path / "t")
     assert all(g is None for g in ts.georefs)
+    assert "ignoring world file r000_c000.pgw" in caplog.text
 
 
 def test_an_anchor_one_tile_off_is_named(tmp_path, utm_raster):

@@ -56,6 +56,31 @@ def test_geojson_is_rfc7946_and_tiles_the_mosaic(solved):
     assert sum(q.area for q in polys) == pytest.approx(union.area, rel=1e-9)
 
 
+def test_geojson_corners_are_proj_s_lon_lat_of_the_tile_corners(solved):
+    """Every footprint's corners, computed independently: the mosaic's
+    transform as GDAL reads it from the GeoTIFF, the tile's cell from the
+    feature's own row and column, then PROJ (rasterio.warp.transform) from
+    UTM zone 30N to WGS 84. Near 4 W 52 N a longitude/latitude swap is
+    plain to see."""
+    import rasterio
+    from rasterio.warp import transform as proj
+
+    doc = json.loads(solved.outputs["report_footprints"].read_text())
+    with rasterio.open(solved.outputs["mosaic"]) as src:
+        t, crs = src.transform, src.crs
+    w, h = solved.tileset.width, solved.tileset.height
+    for feat in doc["features"]:
+        r, c = feat["properties"]["row"], feat["properties"]["col"]
+        px = [(c * w, r * h), ((c + 1) * w, r * h), ((c + 1) * w, (r + 1) * h), (c * w, (r + 1) * h)]
+        xs, ys = zip(*(t * q for q in px))
+        lon, lat = proj(crs, "EPSG:4326", xs, ys)
+        expected = sorted(zip(np.round(lon, 9), np.round(lat, 9)))
+        ring = feat["geometry"]["coordinates"][0][:-1]
+        got = sorted((round(x, 9), round(y, 9)) for x, y in ring)
+        assert got == pytest.approx(expected, abs=1e-9)
+        assert all(-5 < x < -3 and 51 < y < 53 for x, y in ring)  # longitude first (RFC 7946, section 3.1.1)
+
+
 def test_pngs_have_the_expected_size_and_content(solved):
     prev = np.asarray(Image.open(solved.outputs["report_preview"]))
     p, ts = solved.placement, solved.tileset

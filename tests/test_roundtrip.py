@@ -89,3 +89,69 @@ def test_mirrored_and_turned_tiles(tmp_path):
     result = solve(tmp_path / "tiles", tmp_path / "out.tif", options=opts)
     scores = score_placement(read_placement_csv(result.outputs["report_placement"]), cut.key)
     assert scores.perfect, scores
+
+
+@pytest.mark.parametrize("mirrored", [False, True], ids=["turned", "turned and mirrored"])
+def test_tiles_turned_by_hand_come_back_as_the_source(tmp_path, mirrored):
+    """Tiles stored turned (and mirrored) with numpy's own rot90 and fliplr,
+    not stitch's code: the file is the upright tile turned anticlockwise k
+    times (np.rot90), then mirrored (np.fliplr), so the placement contract
+    (mirror, then turn clockwise k times) brings it back. One tile keeps its
+    georeferencing upright, which fixes the frame. The mosaic must equal the
+    source pixel for pixel, and placement.csv must name each tile's k and
+    mirror. Source: scikit-image's coffee (CC0), 4 x 5 tiles of 28 px."""
+    img = skimage_image("coffee")[:, 60:172, 150:290]
+    transform = from_origin(431000.0, 5800000.0, 0.5, 0.5)
+    rng = np.random.default_rng(7)
+    folder = tmp_path / "tiles"
+    folder.mkdir()
+    truth = {}
+    cells = [(r, c) for r in range(4) for c in range(5)]
+    for n, k in enumerate(rng.permutation(len(cells))):
+        r, c = cells[k]
+        tile = img[:, r * TILE:(r + 1) * TILE, c * TILE:(c + 1) * TILE]
+        name = f"frame_{n:02d}.tif"
+        if (r, c) == (1, 2):  # the anchor, upright with its own transform
+            write_raster(folder / name, tile, transform=transform * transform.translation(c * TILE, r * TILE),
+                         crs="EPSG:32630")
+            truth[name] = (r, c, 0, False)
+            continue
+        turns, flip = int(rng.integers(4)), bool(mirrored and rng.random() < 0.5)
+        stored = np.rot90(tile, turns, axes=(1, 2))
+        if flip:
+            stored = stored[:, :, ::-1]  # np.fliplr on each band
+        write_raster(folder / name, np.ascontiguousarray(stored))
+        truth[name] = (r, c, turns, flip)
+    result = solve(folder, tmp_path / "m.tif", options=SolveOptions(rotations=90, mirrored=mirrored, seed=3))
+    with rasterio.open(result.outputs["mosaic"]) as out:
+        np.testing.assert_array_equal(out.read(), img)
+        assert out.transform == transform
+    got = read_placement_csv(result.outputs["report_placement"])
+    for i, name in enumerate(got.names):
+        assert (got.rows[i], got.cols[i], got.rotations[i], bool(got.mirrored[i])) == truth[name], name
+
+
+def test_the_scorer_on_hand_made_turned_and_mirrored_placements():
+    """The scorer checked by hand on a 2 x 3 key. Turning the whole solution
+    a quarter clockwise moves cell (r, c) of a 2-row grid to (c, 1 - r) and
+    adds one quarter turn to every tile; mirroring it left-right moves (r, c)
+    to (r, 2 - c) and flips every tile's mirror bit, with its rotation
+    negated. Either is the same mosaic turned, so every score is perfect;
+    one tile turned on its own costs that tile and its two or three seams."""
+    from stitch.layout import Placement
+
+    names = tuple("abcdef")
+    rows, cols = np.array([0, 0, 0, 1, 1, 1]), np.array([0, 1, 2, 0, 1, 2])
+    rot = np.array([0, 1, 2, 3, 0, 1])
+    mir = np.zeros(6, bool)
+    key = Placement(names, (2, 3), rows, cols, rot, mir)
+    quarter = Placement(names, (3, 2), cols, 1 - rows, (rot + 1) % 4, mir)
+    s = score_placement(quarter, key)
+    assert (s.direct, s.neighbor, s.perfect) == (1.0, 1.0, True)
+    mirrored = Placement(names, (2, 3), rows, 2 - cols, (-rot) % 4, ~mir)
+    s = score_placement(mirrored, key)
+    assert (s.direct, s.neighbor, s.perfect) == (1.0, 1.0, True)
+    one_off = Placement(names, (2, 3), rows, cols, np.where(np.arange(6) == 4, 2, rot), mir)
+    s = score_placement(one_off, key)
+    # Tile e (row 1, col 1) has three neighbours (b, d, f) among the 7 seams.
+    assert s.direct == pytest.approx(5 / 6) and s.neighbor == pytest.approx(4 / 7) and not s.perfect
