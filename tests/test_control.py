@@ -1,10 +1,16 @@
 """Ground control fits, checked against EPSG's method formulas and GDAL.
 
 Outside references:
-* EPSG method 9624 (affine parametric transformation), worked example in the
-  EPSG registry: A0 = 82357.457, A1 = 0.304794369, A2 = 0.000015417425,
-  B0 = 28091.324, B1 = -0.000015417425, B2 = 0.304794369; source
-  (553900.00, 482500.00) maps to (251190.497, 175146.067).
+* EPSG method 9624 (affine parametric transformation), the worked example of
+  IOGP Publication 373-7-2 (Geomatics Guidance Note 7, part 2, "Coordinate
+  Conversions and Transformations including Formulas"), as transcribed in the
+  EPSG registry's method record: Jamaica 1875 / Jamaica (Old Grid) (Clarke's
+  feet) to JAD69 / Jamaica National Grid (metres, EPSG:24200), A0 = 82357.457,
+  A1 = 0.304794369, A2 = 0.000015417425, B0 = 28091.324,
+  B1 = -0.000015417425, B2 = 0.304794369; source (553900.00, 482500.00) ft
+  maps to (251190.497, 175146.067) m; the reverse has D = 0.092899608,
+  A0' = -270201.960, A1' = 3.280900499, A2' = -0.000165958, B0' = -92178.507,
+  B1' = 0.000165958, B2' = 3.280900499.
 * EPSG method 9621 (similarity transformation): X = X0 + a x + b y,
   Y = Y0 - b x + a y with a = M cos(theta), b = M sin(theta).
 * GDAL's GDALGCPsToGeoTransform, through ``rasterio.transform.from_gcps``.
@@ -38,6 +44,17 @@ def test_epsg_9624_worked_example():
     x, y = 553900.00, 482500.00
     assert g0 + g1 * x + g2 * y == pytest.approx(251190.497, abs=1e-3)
     assert h0 + h1 * x + h2 * y == pytest.approx(175146.067, abs=1e-3)
+
+
+def test_epsg_9624_worked_example_reverse():
+    """The guidance note's reverse parameters, fitted from the target side."""
+    a0, a1, a2, b0, b1, b2 = EPSG_9624
+    src = np.array([[553900.0, 482500.0], [550000.0, 480000.0], [560000.0, 481000.0], [555000.0, 490000.0]])
+    dst = np.column_stack([a0 + a1 * src[:, 0] + a2 * src[:, 1], b0 + b1 * src[:, 0] + b2 * src[:, 1]])
+    r0, r1, r2, s0, s1, s2 = fit_affine(dst, src)
+    assert a1 * b2 - a2 * b1 == pytest.approx(0.092899608, abs=1e-9)
+    assert (r0, s0) == pytest.approx((-270201.960, -92178.507), abs=1e-2)
+    assert (r1, r2, s1, s2) == pytest.approx((3.280900499, -0.000165958, 0.000165958, 3.280900499), abs=1e-9)
 
 
 def test_similarity_follows_epsg_9621_form():

@@ -387,10 +387,19 @@ def test_non_raster_files_are_skipped_with_a_note(tmp_path):
 
 
 def test_two_tiles_solve(tmp_path):
-    d = _tiles(tmp_path / "in", n=2)
+    """Two neighbours (t0 left of t1 in coffee, CC0), stored in reverse name
+    order of their places would pass for either: the mosaic must be the
+    source strip."""
+    d = tmp_path / "in"
+    d.mkdir()
+    strip = skimage_image("coffee")[:, 100:128, 100:156]
+    write_raster(d / "b.tif", strip[:, :, :28])  # the left tile, named to sort second
+    write_raster(d / "a.tif", strip[:, :, 28:])
     r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
     assert r.exit_code == 0, r.output
     assert "placed 2 tiles" in r.output
+    with rasterio.open(tmp_path / "m.tif") as out:
+        np.testing.assert_array_equal(out.read(), strip)
 
 
 def test_identical_and_duplicate_tiles_warn(tmp_path):
@@ -450,9 +459,15 @@ def test_overwrite_never_replaces_a_tile(tmp_path, target):
 
 
 def test_verbose_shows_the_traceback(tmp_path):
+    """Without -v one line; with -vv the traceback (in a real process, as a
+    user sees it)."""
     (tmp_path / "in").mkdir()
-    r = runner.invoke(app, ["solve", str(tmp_path / "in"), "-o", str(tmp_path / "m.tif"), "-v"])
-    assert r.exit_code != 0 and isinstance(r.exception, StitchError)
+    cmd = [sys.executable, "-m", "stitch", "solve", str(tmp_path / "in"), "-o", str(tmp_path / "m.tif")]
+    quiet = subprocess.run(cmd, capture_output=True, text=True, timeout=120)
+    loud = subprocess.run(cmd + ["-vv"], capture_output=True, text=True, timeout=120)
+    assert quiet.returncode == 1 and "Traceback" not in quiet.stderr
+    assert loud.returncode == 1
+    assert "Traceback (most recent call last)" in loud.stderr and "TileSetError" in loud.stderr
 
 
 def test_write_failure_midway_leaves_nothing(tmp_path, monkeypatch, tiles_dir):

@@ -1,10 +1,14 @@
 """Georeferencing of the mosaic, checked against GDAL (through rasterio) and affine.
 
 Outside references:
-* GDAL's world-file convention (GDAL raster driver docs, "world files"): six
-  lines A, D, B, E, C, F; C, F are the map coordinates of the *centre* of the
-  upper-left pixel, i.e. the corner plus half a pixel.
+* The world file's six lines A, D, B, E, C, F, with C, F the map coordinates
+  of the *centre* of the upper-left pixel (the corner plus half a pixel):
+  common practice, no source (no standard defines the world file); checked
+  against GDAL's own reading of PNG and JPEG sidecars and affine's
+  ``loadsw``/``dumpsw``, the documented conventions of both libraries.
 * ``rasterio.transform.from_bounds`` / ``from_origin`` (rasterio docs).
+* OGC GeoTIFF 1.1 (OGC 19-008r4) for the GeoKeys; PixelIsArea as the raster
+  type a mosaic of area pixels carries is common practice, no source.
 """
 
 import numpy as np
@@ -56,7 +60,7 @@ def test_origin_and_pixel_size_give_rasterio_from_origin(tmp_path, tiles_dir):
 
 
 def test_world_file_lines_follow_gdal_convention():
-    # GDAL world-file convention: A, D, B, E, C, F with C, F at the UL pixel centre.
+    # A, D, B, E, C, F with C, F at the UL pixel centre (common practice, no source).
     t = Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0)
     lines = [float(v) for v in world_file_text(t).split()]
     assert lines == [0.5, 0.0, 0.0, -0.5, 431000.25, 5799999.75]
@@ -178,8 +182,10 @@ def _geotiff_tags(path):
 
 def test_geotiff_tags_follow_ogc_geotiff(tmp_path, tiles_dir, utm_raster):
     """OGC GeoTIFF 1.1 (OGC 19-008r4): pixel scale and tiepoint match the transform,
-    the tiepoint ties raster (0, 0) (the upper-left corner) to the map, the raster is
-    PixelIsArea (GTRasterTypeGeoKey 1025 = 1) and ProjectedCRSGeoKey (3072) is the EPSG code."""
+    the tiepoint ties raster (0, 0) (the upper-left corner) to the map, and
+    ProjectedCRSGeoKey (3072) is the EPSG code. The raster type is PixelIsArea
+    (GTRasterTypeGeoKey 1025 = 1): the standard defines the key; that area
+    pixels are the default for imagery is common practice, no source."""
     result = solve(tiles_dir, tmp_path / "m.tif")
     with rasterio.open(utm_raster) as src:
         t = src.transform

@@ -28,9 +28,11 @@ def test_identical_is_perfect():
 
 
 def test_shift_by_one_column_keeps_every_neighbour():
+    """Direct comparison takes cells as they stand (no tile is in its cell);
+    the shifted variant forgives the global shift."""
     shifted = grid_placement([[-1, 0, 1, 2], [-1, 3, 4, 5], [-1, 6, 7, 8]])
     s = score_placement(shifted, KEY)
-    assert (s.direct, s.neighbor, s.perfect) == (1.0, 1.0, True)
+    assert (s.direct, s.shifted_direct, s.neighbor, s.perfect) == (0.0, 1.0, 1.0, True)
 
 
 def test_swapping_corner_and_centre_breaks_their_six_adjacencies():

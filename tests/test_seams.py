@@ -128,9 +128,18 @@ def test_blank_tiles_score_finite():
     tiles.append(np.zeros_like(tiles[0]))
     tiles.append(np.full_like(tiles[0], 7.0))
     edges = EdgeStrips.from_pixels(tiles)
-    table = score_seams(edges, orientations=allowed_orientations(90, False))
+    blank = np.array([False] * 4 + [True, True])
+    table = score_seams(edges, orientations=allowed_orientations(90, False), blank=blank)
     off_diag = ~np.eye(len(tiles), dtype=bool)
     assert np.isfinite(table.blocks[:, off_diag]).all()
+    # Neutral: a blank tile costs the same against every other tile, in every
+    # block, so it neither attracts nor repels; and it is nobody's best buddy.
+    for block in table.blocks:
+        for b in np.flatnonzero(blank):
+            others = np.flatnonzero(np.arange(len(tiles)) != b)
+            assert np.unique(block[b, others]).size == 1 and np.unique(block[others, b]).size == 1
+    assert (table.best_buddies.reshape(-1, 4)[blank] == -1).all()
+    assert not np.isin(table.best_buddies[table.best_buddies >= 0] // 8, np.flatnonzero(blank)).any()
 
 
 def test_mgc_tiny_example_by_hand():
