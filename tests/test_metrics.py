@@ -65,3 +65,15 @@ def test_missing_tiles_count_as_wrong():
     partial = Placement(NAMES[:8], KEY.shape, KEY.rows[:8], KEY.cols[:8], KEY.rotations[:8], KEY.mirrored[:8])
     s = score_placement(partial, KEY)
     assert s.missing == 1 and s.direct == pytest.approx(8 / 9) and s.neighbor == pytest.approx(10 / 12)
+
+
+def test_a_missing_tile_never_borrows_another_tiles_cell():
+    """Key: a at (0, 0), b at (0, 1). The solution lost a and put b on a's
+    cell: no tile is where it belongs, so the direct comparison is 0 (a
+    scorer that looked up the missing tile by a default index would credit
+    b's cell to a), and the shifted one is 1/2 (b alone, one column off)."""
+    key = Placement(("a", "b"), (1, 2), np.array([0, 0]), np.array([0, 1]), np.zeros(2, int), np.zeros(2, bool))
+    solution = Placement(("b",), (1, 2), np.array([0]), np.array([0]), np.zeros(1, int), np.zeros(1, bool))
+    s = score_placement(solution, key)
+    assert (s.direct, s.shifted_direct, s.missing, s.perfect) == (0.0, 0.5, 1, False)
+    assert s.neighbor == 0.0  # the one true seam a|b is gone

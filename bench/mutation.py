@@ -1,0 +1,89 @@
+"""Mutation testing of the georeferencing, control, layout and scoring code.
+
+mutmut (a maintained mutation tester, ``pip install mutmut==3.2.0``; a
+benchmark-only tool, not a stitch dependency) changes one operator, constant
+or name at a time in ``stitch/georef.py``, ``stitch/control.py``,
+``stitch/layout.py`` and ``stitch/puzzles.py`` and runs the tests that reach
+the changed function; a mutant no test notices is a place where the suite
+would let a bug through. Modules with numba kernels are not mutated (numba
+cannot compile mutmut's trampolines) and tests that run stitch in a child
+process are left out (the child does not see the mutant).
+
+The run happens in a scratch copy of the repository (``--work``, default a
+temporary folder) named ``stitch`` so mutmut finds the package. mutmut
+imports the package from that copy: run it from an environment where stitch
+is *not* installed in editable mode from this checkout, or the tests import
+the unmutated code and every mutant "survives" (for instance a venv whose
+site-packages holds a ``.pth`` line naming the system site-packages folder,
+which adds the libraries without running their editable-install hooks).
+
+    python bench/mutation.py            # prints mutmut's summary and the survivors
+    python bench/mutation.py --keep     # keep the scratch copy to inspect mutants
+
+Takes about five minutes on 2 cores.
+"""
+
+import argparse
+import shutil
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parent.parent
+MUTATED = ["stitch/georef.py", "stitch/control.py", "stitch/layout.py", "stitch/puzzles.py"]
+TESTS = ["tests/test_georef.py", "tests/test_control.py", "tests/test_layout.py", "tests/test_metrics.py",
+         "tests/test_roundtrip.py", "tests/test_real_rasters.py", "tests/test_errors.py"]
+# Tests that run stitch in a child process, and the fuzzers (slow, and not aimed at these modules).
+LEFT_OUT = ["verbose_shows", "signals_leave", "full_disk", "overviews_are_not_built", "fuzz", "same_seed_same_bytes"]
+
+
+def _setup(work):
+    copy = work / "stitch"
+    subprocess.run(["git", "clone", "-q", str(REPO), str(copy)], check=True)
+    kept = sorted(str(p.relative_to(copy)) for p in (copy / "stitch").glob("*.py") if str(p.relative_to(copy)) not in MUTATED)
+    cfg = ["[mutmut]", "do_not_mutate="] + [f"    {k}" for k in kept + ["stitch/search/*"]]
+    cfg += ["also_copy=", "    demo_tiles", "    pyproject.toml", "    stitch/search"] + [f"    {k}" for k in kept]
+    (copy / "setup.cfg").write_text("\n".join(cfg) + "\n")
+    py = copy / "pyproject.toml"
+    text = py.read_text()
+    deselect = " and ".join(f"not {t}" for t in LEFT_OUT)
+    # No doctests: mutmut copies each mutated function with its docstring,
+    # and the copies' doctests then pass for it as the mutant's tests.
+    text = text.replace('addopts = "--strict-markers -ra --doctest-modules"',
+                        f'addopts = "--strict-markers -ra -p no:cacheprovider -k \'{deselect}\'"')
+    paths = ", ".join(f'"{p}"' for p in TESTS)
+    text = text.replace('testpaths = ["stitch", "tests"]', f"testpaths = [{paths}]")
+    py.write_text(text)
+    return copy
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--work", type=Path, help="scratch folder (default: a temporary one)")
+    ap.add_argument("--keep", action="store_true", help="keep the scratch copy")
+    args = ap.parse_args()
+    mutmut = shutil.which("mutmut")
+    if mutmut is None:
+        sys.exit("mutmut is not installed: pip install mutmut==3.2.0 (see the module notes on the environment)")
+    work = args.work or Path(tempfile.mkdtemp(prefix="stitch-mutation-"))
+    try:
+        copy = _setup(work)
+        subprocess.run([mutmut, "run", "--max-children", "2"], cwd=copy)
+        results = subprocess.run([mutmut, "results"], cwd=copy, capture_output=True, text=True).stdout
+        survivors = [ln.split(":")[0].strip() for ln in results.splitlines() if ln.strip().endswith("survived")]
+        untested = [ln.split(":")[0].strip() for ln in results.splitlines() if ln.strip().endswith("no tests")]
+        print(f"survived: {len(survivors)}; not reached by any test: {len(untested)}")
+        for name in survivors:
+            print(f"  survived  {name}")
+        for name in untested:
+            print(f"  no tests  {name}")
+    finally:
+        if not args.keep and args.work is None:
+            shutil.rmtree(work, ignore_errors=True)
+        else:
+            print(f"scratch copy kept in {work / 'stitch'}", file=sys.stderr)
+
+
+if __name__ == "__main__":
+    main()
