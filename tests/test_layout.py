@@ -74,3 +74,17 @@ def test_bad_placement_csv(tmp_path, text, message):
     f.write_text(text)
     with pytest.raises(PlacementFileError, match=message):
         read_placement_csv(f)
+
+
+def test_seam_pairs_of_a_3x2_grid_by_hand():
+    """Tiles 0 1 / 2 3 / 4 5, upright: a tile's right side is slot 4 t + 1,
+    its bottom 4 t + 2, its left 4 t + 3, its top 4 t (sides clockwise from
+    the top, the placement.csv contract). Three horizontal and four vertical
+    seams, listed by hand."""
+    import numpy as np
+
+    p = Placement(tuple("abcdef"), (3, 2), np.array([0, 0, 1, 1, 2, 2]), np.array([0, 1, 0, 1, 0, 1]),
+                  np.zeros(6, int), np.zeros(6, bool))
+    expected = {(1, 7, 0), (9, 15, 0), (17, 23, 0),   # 0|1, 2|3, 4|5
+                (2, 8, 0), (6, 12, 0), (10, 16, 0), (14, 20, 0)}  # 0/2, 1/3, 2/4, 3/5
+    assert {tuple(int(v) for v in s) for s in seam_pairs(p)} == expected

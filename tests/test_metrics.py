@@ -77,3 +77,16 @@ def test_a_missing_tile_never_borrows_another_tiles_cell():
     s = score_placement(solution, key)
     assert (s.direct, s.shifted_direct, s.missing, s.perfect) == (0.0, 0.5, 1, False)
     assert s.neighbor == 0.0  # the one true seam a|b is gone
+
+
+def test_scores_do_not_depend_on_the_order_tiles_are_listed_in():
+    """The same 3 x 3 placement, its tiles listed in another order (as a
+    placement.csv sorted by name and an answer key sorted by cell are), with
+    turned tiles: every score is perfect, every seam found under its names."""
+    rot = np.array([0, 1, 2, 3, 0, 1, 2, 3, 0])
+    key = Placement(NAMES, (3, 3), KEY.rows, KEY.cols, rot, np.zeros(9, bool))
+    order = np.array([4, 8, 0, 6, 2, 7, 1, 5, 3])
+    listed = Placement(tuple(NAMES[i] for i in order), (3, 3), KEY.rows[order], KEY.cols[order], rot[order],
+                       np.zeros(9, bool))
+    s = score_placement(listed, key)
+    assert (s.direct, s.shifted_direct, s.neighbor, s.perfect, s.adjacencies) == (1.0, 1.0, 1.0, True, 12)
