@@ -51,8 +51,7 @@ class _Stage:
             if not self.overwrite and final.exists():
                 raise OutputExistsError(f"output {str(final)!r} appeared while writing; not replaced")
         while self.pending:
-            tmp, final = self.pending[0]
-            os.replace(tmp, final)
+            os.replace(*self.pending[0])
             self.pending.pop(0)
 
     def discard(self):
@@ -66,28 +65,23 @@ class _Stage:
 def staged(*, overwrite=False):
     """Rename every file written by :func:`atomic_path` inside the block
     together when it ends; on any exception remove them all and leave the
-    old outputs as they were.
-
-    Yields
-    ------
-    list of Path
-        The final paths written so far (read it after the block).
-    """
+    old outputs as they were."""
     stage = _Stage(overwrite)
     token = _STAGE.set(stage)
-    written = []
     try:
-        yield written
+        yield
+    except BaseException:
         _STAGE.reset(token)
-        token = None
-        written.extend(final for _, final in stage.pending)
-        try:
-            stage.commit()
-        except OSError as exc:
-            raise OutputError(f"cannot rename the finished outputs into place: {exc}") from exc
+        stage.discard()
+        raise
+    _STAGE.reset(token)
+    try:
+        stage.commit()
+    except OutputError:
+        raise
+    except OSError as exc:
+        raise OutputError(f"cannot rename the finished outputs into place: {exc}") from exc
     finally:
-        if token is not None:
-            _STAGE.reset(token)
         stage.discard()
 
 

@@ -20,9 +20,10 @@ from __future__ import annotations
 
 import numpy as np
 
+from .errors import OptionError
 from .measures import get_measure
-from .seams import _side_pairs, band_scaling, seam_block
-from .tiles import EdgeStrips, pad_to_cell, partial_sizes, read_masked, side_strips
+from .seams import band_scaling, seam_block, side_pairs
+from .tiles import EdgeStrips, edge_strips, pad_to_cell, partial_sizes, read_masked
 
 __all__ = ["outer_offsets", "partial_edges", "partial_grid", "upright_pattern"]
 
@@ -73,7 +74,17 @@ def partial_edges(tileset, orientations):
     outer : ndarray of bool, shape (n_tiles, 4)
         File sides (0 top, 1 right, 2 bottom, 3 left) that faced the raster's
         edge; all False for full tiles.
+
+    Raises
+    ------
+    OptionError
+        The partial tiles look turned a quarter but no quarter turn is allowed.
     """
+    if tileset.partial.any() and not any(int(o) % 2 for o in orientations) and not upright_pattern(tileset):
+        raise OptionError(
+            f"the {int(tileset.partial.sum())} partial edge tiles in {str(tileset.folder)!r} come in more than one "
+            "width or height, as when narrow tiles are stored turned a quarter; solve with --rotations 90"
+        )
     outer = _default_outer(tileset)
     if tileset.sizes is None or set(int(o) for o in orientations) == {0}:
         return tileset.edges, outer
@@ -82,7 +93,7 @@ def partial_edges(tileset, orientations):
     raw = {}
     for i in part:
         pixels, mask = read_masked(tileset.folder / tileset.names[i], tileset.nodata, dtype)
-        raw[int(i)] = (pixels, mask, side_strips(pixels), [m[..., 0] for m in side_strips(~mask[None])])
+        raw[int(i)] = (pixels, mask, *edge_strips(pixels, mask))
     ratio = _distinctiveness(tileset, raw, orientations)
     w, h = tileset.sizes[:, 0], tileset.sizes[:, 1]
     for i in part:
@@ -100,9 +111,9 @@ def partial_edges(tileset, orientations):
     valid = [v.copy() for v in tileset.edges.valid]
     for i in moved:
         pixels, mask = pad_to_cell(raw[i][0], raw[i][1], tileset.width, tileset.height, tuple(offsets[i]))
-        for s, (strip, vstrip) in enumerate(zip(side_strips(pixels), side_strips(~mask[None]))):
+        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask))):
             sides[s][i] = strip
-            valid[s][i] = vstrip[..., 0]
+            valid[s][i] = ok
     return EdgeStrips(sides=tuple(sides), valid=tuple(valid)), outer
 
 
@@ -147,7 +158,7 @@ def _distinctiveness(tileset, raw, orientations):
             ok = oks[s]
             queries.setdefault((s, strips[s].shape[0]), []).append(
                 (i, normalized(strips[s], ok), ok[..., 0] & ok[..., 1]))
-    pairs = _side_pairs(orientations)
+    pairs = side_pairs(orientations)
     out = {}
     for (a, length), group in queries.items():
         who = np.array([g[0] for g in group])

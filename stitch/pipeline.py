@@ -30,7 +30,7 @@ from .georef import (
     world_file_path,
 )
 from .layout import Placement, allowed_orientations, normalize_frame
-from .partial import partial_edges, partial_grid, upright_pattern
+from .partial import partial_edges, partial_grid
 from .mosaic import mosaic_size, write_mosaic
 from .report import check_report, report_paths, write_report
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
@@ -257,13 +257,16 @@ def _refuse_inputs(paths, tiles_dir, recursive):
         inside = path.resolve().parent == folder.resolve() or (recursive and _inside(path, folder))
         if not inside:
             continue
-        if path.suffix.lower() in RASTER_SUFFIXES and not is_own_output(path):
-            raise OptionError(f"{str(path)!r} is one of the tiles in {str(folder)!r}; writing there would destroy "
-                              "an input (--overwrite never replaces tiles): choose another output or report folder")
+        if path.suffix.lower() in RASTER_SUFFIXES:
+            if not is_own_output(path):
+                raise OptionError(f"{str(path)!r} is one of the tiles in {str(folder)!r}; writing there would "
+                                  "destroy an input (--overwrite never replaces tiles): choose another output or "
+                                  "report folder")
+            continue
         # A world file or .prj beside a tile belongs to that tile.
         owners = [path.with_suffix(e) for ext in RASTER_SUFFIXES for e in (ext, ext.upper())]
         owner = next((o for o in owners if o.is_file() and not is_own_output(o)), None)
-        if owner is not None and path.suffix.lower() not in RASTER_SUFFIXES:
+        if owner is not None:
             raise OptionError(f"{str(path)!r} is the sidecar of tile {owner.name!r} in {str(folder)!r}; writing "
                               "there would destroy an input (--overwrite never replaces it): choose another output")
 
@@ -328,11 +331,6 @@ def place_tiles(tileset, options=None, *, progress=None):
         r, c = options.grid
         raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
-    if tileset.partial.any() and not any(o % 2 for o in orientations) and not upright_pattern(tileset):
-        raise OptionError(
-            f"the {int(tileset.partial.sum())} partial edge tiles in {str(tileset.folder)!r} come in more than one "
-            "width or height, as when narrow tiles are stored turned a quarter; solve with --rotations 90"
-        )
     edges, outer = partial_edges(tileset, orientations)
     table = score_seams(edges, orientations=orientations, measure=options.measure, k=options.candidates,
                         blank=tileset.blank, progress=progress)
@@ -460,15 +458,15 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
             f"output {str(output)!r} is inside the tile folder and could pass for a tile; write it elsewhere "
             "or put 'mosaic' in its name"
         )
-    _refuse_inputs([output, world_file_path(output), *report_paths(report_dir).values()], tiles_dir,
-                   options.recursive)
+    planned = [output, world_file_path(output), *report_paths(report_dir).values()]
+    _refuse_inputs(planned, tiles_dir, options.recursive)
     check_outputs([output, world_file_path(output)], overwrite=overwrite)
     check_report(report_dir, overwrite=overwrite)
     check_before_reading(tiles_dir, options)
     # The run owns its output until it ends: a second run on it refuses now
     # rather than racing this one.
     with output_lock(output):
-        remove_stale_partials([output, world_file_path(output), *report_paths(report_dir).values()])
+        remove_stale_partials(planned)
         return _solve(tiles_dir, output, options, report_dir, overwrite, progress)
 
 

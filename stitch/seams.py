@@ -42,6 +42,7 @@ __all__ = [
     "normalize_strips",
     "score_seams",
     "seam_block",
+    "side_pairs",
 ]
 
 log = logging.getLogger(__name__)
@@ -111,7 +112,7 @@ def normalize_strips(sides, valid=None):
     return out
 
 
-def _side_pairs(orientations):
+def side_pairs(orientations):
     """(side_a, side_b, flip) triples the allowed orientations can make meet.
 
     ``side_a`` faces right (or down) and ``side_b`` left (or up); the set is
@@ -138,7 +139,7 @@ def count_blocks(orientations):
     >>> count_blocks((0,)), count_blocks((0, 1, 2, 3))
     (2, 10)
     """
-    return len({(min(a, b), max(a, b), f) for a, b, f in _side_pairs(orientations)})
+    return len({(min(a, b), max(a, b), f) for a, b, f in side_pairs(orientations)})
 
 
 def keeps_dense(n_tiles, blocks):
@@ -550,7 +551,7 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     block_index = np.full((4, 4, 2), -1, np.int64)
     transposed = np.zeros((4, 4, 2), bool)
     unique = []
-    for a, b, f in _side_pairs(orientations):
+    for a, b, f in side_pairs(orientations):
         if block_index[a, b, f] >= 0 or sides[a].shape[1] != sides[b].shape[1]:
             continue  # done already, or sides of different length never meet
         block_index[a, b, f] = block_index[b, a, f] = len(unique)

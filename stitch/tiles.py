@@ -39,6 +39,7 @@ __all__ = [
     "TileGeoref",
     "TileSet",
     "NOISE_LIKE",
+    "edge_strips",
     "find_tiles",
     "noise_like",
     "is_own_output",
@@ -119,6 +120,25 @@ class TileGeoref:
     transform: Affine
     crs: CRS | None
     source: str
+
+
+def edge_strips(pixels, mask):
+    """The four edge strips of one tile and where their pixels are valid.
+
+    Parameters
+    ----------
+    pixels : ndarray, shape (bands, rows, cols)
+    mask : ndarray of bool, shape (rows, cols)
+        True where nodata.
+
+    Returns
+    -------
+    strips : list of ndarray
+        As :func:`side_strips`.
+    valid : list of ndarray of bool
+        For sides 0..3, shaped ``(length, 2)``.
+    """
+    return side_strips(pixels), [v[..., 0] for v in side_strips(~mask[None])]
 
 
 @dataclass(frozen=True)
@@ -502,9 +522,9 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         if pixels.shape[1:] != (height, width):
             pixels, mask = pad_to_cell(pixels, mask, width, height)
         blank[i] = good.size == 0 or bool(np.all(good.max(axis=1) == good.min(axis=1)))
-        for s, (strip, vstrip) in enumerate(zip(side_strips(pixels), side_strips(~mask[None]))):
+        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask))):
             sides[s][i] = strip
-            valid[s][i] = vstrip[..., 0]
+            valid[s][i] = ok
         if progress is not None:
             progress("read", i + 1, n)
     if blank.any():
