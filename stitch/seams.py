@@ -251,6 +251,101 @@ def footprint_mismatch(left_valid, right_valid, *, flip=False, slack=0):
     return np.clip(excess / length, 0.0, 1.0).astype(np.float32)
 
 
+#: Valid rows two sides must share before their pixels are evidence for or
+#: against the seam: fewer, and the pair costs a typical plausible seam (plus
+#: its footprint term), as much as the search's reward for a seam, so that
+#: two sides that are both nodata, such as water marked as nodata on either
+#: side, neither attract nor repel against an empty cell. A measure scaled up
+#: from one shared row is noise (our choice, no source).
+MIN_SHARED_ROWS = 2
+
+#: Side slots sampled to estimate that typical cost on large sets.
+TYPICAL_SAMPLE = 512
+
+
+def shared_rows(left_rows, right_rows, *, flip=False):
+    """Usable rows two sides have in common, for every pair (one matrix product).
+
+    Examples
+    --------
+    >>> a = np.array([[True, True, False, False]])
+    >>> int(shared_rows(a, a, flip=True)[0, 0]), int(shared_rows(a, a)[0, 0])
+    (2, 0)
+    """
+    a = np.asarray(left_rows, np.float32)
+    b = np.asarray(right_rows, np.float32)
+    if not flip:
+        b = b[:, ::-1]
+    return np.rint(a @ np.ascontiguousarray(b).T)
+
+
+def _masked_costs(block, rows_a, rows_b, edge_a, edge_b, flip, scale, typical):
+    """Costs of a block of sides that hold nodata: the measure where the two
+    sides share :data:`MIN_SHARED_ROWS` valid rows, ``typical`` where they do
+    not, plus the footprint term (``scale`` is a good seam's cost)."""
+    few = shared_rows(rows_a, rows_b, flip=flip) < MIN_SHARED_ROWS - 0.5
+    out = np.where(few | ~np.isfinite(block) | (block < 0), np.float32(typical), block)
+    fp = footprint_mismatch(edge_a, edge_b, flip=flip, slack=FOOTPRINT_SLACK)
+    out += np.float32(FOOTPRINT_WEIGHT) * np.float32(max(scale, 1e-6)) * fp
+    return out.astype(np.float32, copy=False)
+
+
+def _hole_costs(boundary_ok, scale):
+    """Per side slot, the footprint term of the side against an all-nodata one."""
+    share = np.stack([np.clip((v.sum(axis=1) - FOOTPRINT_SLACK) / max(v.shape[1], 1), 0.0, 1.0)
+                      for v in boundary_ok], axis=1).reshape(-1)
+    return (np.float32(FOOTPRINT_WEIGHT) * np.float32(max(scale, 1e-6)) * share).astype(np.float32)
+
+
+def _typical_costs(fn, sides, rows_ok, boundary_ok, unique, dead, pool):
+    """Per block, a good seam's cost (the median over its sampled rows of their
+    cheapest entry, the footprint term's unit) and, over every block, the
+    typical cost of a plausible seam: the median over sampled live side
+    slots of their second-best cost, as the search's reward is taken from
+    the finished table (:class:`stitch.search.problem.Problem`). Pairs with
+    too few shared rows are left out of both. On sets of at most
+    :data:`TYPICAL_SAMPLE` tiles every slot is sampled, and the measured
+    blocks are returned too, so that they are computed once."""
+    n = sides[0].shape[0]
+    sample = np.unique(np.linspace(0, n - 1, min(n, TYPICAL_SAMPLE)).astype(np.int64))
+    scales = []
+    two = np.full((4, len(sample), 2), np.inf, np.float32)  # two cheapest per sampled slot
+
+    def fold(side, costs):
+        both = np.concatenate([two[side], costs], axis=1)
+        two[side] = np.partition(both, 1, axis=1)[:, :2] if both.shape[1] > 2 else np.sort(both, axis=1)[:, :2]
+
+    every = len(sample) == n
+    raw = []  # the measured blocks, when every row was sampled: the table reuses them
+    for a, b, f in unique:
+        for rows, cols, side, transpose in ((sample, slice(None), a, False), (slice(None), sample, b, True)):
+            if transpose and a == b:
+                continue  # the rows already gave this side's entries
+            if transpose and every:
+                fold(side, blk.T)  # every tile sampled: the block of the rows holds the columns too
+                continue
+            ra, rb = rows_ok[a][rows], rows_ok[b][cols]
+            measured = _rows_in_parallel(fn, sides[a][rows], sides[b][cols], ra, rb, bool(f), pool)
+            if every:
+                raw.append(measured)
+            blk = np.where(np.isfinite(measured) & (measured >= 0), measured, np.inf).astype(np.float32)
+            blk[shared_rows(ra, rb, flip=bool(f)) < MIN_SHARED_ROWS - 0.5] = np.inf
+            ia = np.arange(n)[rows][:, None]
+            ib = np.arange(n)[cols][None, :]
+            blk[ia == ib] = np.inf  # a tile never meets itself
+            if not transpose:
+                best = blk.min(axis=1)
+                best = best[np.isfinite(best)]
+                scales.append(np.float32(np.median(best)) if best.size else np.float32(1.0))
+            fp = footprint_mismatch(boundary_ok[a][rows], boundary_ok[b][cols], flip=bool(f), slack=FOOTPRINT_SLACK)
+            blk += np.float32(FOOTPRINT_WEIGHT) * max(scales[-1], np.float32(1e-6)) * fp
+            fold(side, blk.T if transpose else blk)
+    live = two[:, :, 1][~dead[sample].T]
+    live = live[np.isfinite(live) & (live > 0)]
+    typical = np.float32(np.median(live)) if live.size else np.float32(np.median(scales)) if scales else np.float32(1.0)
+    return scales, typical, raw
+
+
 def _neutralize(block, dead_rows, dead_cols):
     """Replace NaN, negative and dead entries by the block's median (neutral)."""
     if not dead_rows.any() and not dead_cols.any() and _count_bad(block) == 0:
@@ -394,6 +489,13 @@ class SeamTable:
     coverage : ndarray, shape (4 * n_tiles,), float32
         Share of each side's boundary pixels that hold valid data (1 without
         nodata); below 1 somewhere, the set has a nodata collar.
+    hole_costs : ndarray, shape (4 * n_tiles,), float32, optional
+        What each side slot costs facing an empty cell inside the grid: an
+        empty cell is a skipped tile that held only nodata, so valid data
+        facing it is a footprint mismatch (:func:`footprint_mismatch`
+        against an all-nodata side, with :data:`FOOTPRINT_WEIGHT`). None
+        without nodata: then an empty cell is a missing tile and costs
+        nothing.
     """
 
     n_tiles: int
@@ -410,6 +512,7 @@ class SeamTable:
     dead: np.ndarray
     measure: str
     coverage: np.ndarray | None = None
+    hole_costs: np.ndarray | None = None
 
     @property
     def has_collar(self):
@@ -570,25 +673,28 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     done = 0
     pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
     with threadpool_limits(limits=1, user_api="blas"), pool:
+        if masked:
+            scales, typical, measured = _typical_costs(fn, sides, rows_ok, boundary_ok, unique, dead, pool)
         for idx, (a, b, f) in enumerate(unique):
             rv_a = rows_ok[a] if masked else None
             rv_b = rows_ok[b] if masked else None
             col_codes = 2 * (4 * tiles + b) + f
             for r0 in range(0, n, chunk):
                 r1 = min(n, r0 + chunk)
-                blk = _rows_in_parallel(fn, sides[a][r0:r1], sides[b], None if rv_a is None else rv_a[r0:r1], rv_b,
-                                        bool(f), pool)
-                blk = _neutralize(blk, dead[r0:r1, a], dead[:, b])
+                if masked and measured and r1 - r0 == n:
+                    blk = measured[idx]
+                else:
+                    blk = _rows_in_parallel(fn, sides[a][r0:r1], sides[b], None if rv_a is None else rv_a[r0:r1],
+                                            rv_b, bool(f), pool)
                 if masked:
-                    # The valid-data footprint is evidence too: a nodata
-                    # edge that crosses a seam continues on the other side.
-                    fp = footprint_mismatch(boundary_ok[a][r0:r1], boundary_ok[b], flip=bool(f),
-                                            slack=FOOTPRINT_SLACK)
-                    if fp.any():
-                        good = blk.min(axis=1)
-                        good = good[np.isfinite(good)]
-                        scale = np.float32(np.median(good)) if good.size else np.float32(1.0)
-                        blk += np.float32(FOOTPRINT_WEIGHT) * max(scale, np.float32(1e-6)) * fp
+                    # Too few shared rows is no evidence either way; the
+                    # valid-data footprint is: a nodata edge that crosses a
+                    # seam continues on the other side.
+                    blk = _masked_costs(blk, rv_a[r0:r1], rv_b, boundary_ok[a][r0:r1], boundary_ok[b], bool(f),
+                                        scales[idx], typical)
+                    blk = _neutralize(blk, blank[r0:r1], blank)
+                else:
+                    blk = _neutralize(blk, dead[r0:r1, a], dead[:, b])
                 blk[np.arange(r1 - r0), np.arange(r0, r1)] = np.inf  # a tile never meets itself
                 if dense:
                     blocks[idx, r0:r1] = blk
@@ -623,4 +729,5 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
         transposed=transposed, candidates=cand, candidate_costs=cand_cost, fallback=fallback, second=second,
         best_buddies=buddies, dead=dead_slots, measure=name,
         coverage=np.stack([v.mean(axis=1) for v in boundary_ok], axis=1).reshape(-1).astype(np.float32),
+        hole_costs=_hole_costs(boundary_ok, np.median(scales)) if masked else None,
     )

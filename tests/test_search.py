@@ -444,13 +444,12 @@ def test_a_tilted_flight_block_comes_back_pixel_for_pixel(tmp_path):
         np.testing.assert_array_equal(out.read(), s.read(window=window))
 
 
-@pytest.mark.filterwarnings("ignore:the 20x22 grid was inferred with a thin margin:UserWarning")
 def test_grid_inference_on_a_collar_with_half_its_cells_empty(tmp_path):
     """A block turned by 40 degrees leaving 47 % of the grid's cells empty:
-    the grid is still the block's box (a 21 x 21 grid comes close, and the
-    run says the margin is thin), and every tile that holds at least a
-    quarter valid pixels is in its cell (the few corner tips with less are
-    left to the review)."""
+    the grid is still the block's box, by a clear margin (the empty cells
+    are priced: valid data may not face one), and every tile that holds at
+    least a quarter valid pixels is in its cell (the few corner tips with
+    less are left to the review)."""
     import rasterio
 
     src, cut = _collar_folder(tmp_path, 64, 40, 0.4)
@@ -459,6 +458,7 @@ def test_grid_inference_on_a_collar_with_half_its_cells_empty(tmp_path):
     assert len(key.names) < 0.55 * box[0] * box[1]
     result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=1))
     assert result.placement.shape == box
+    assert not result.search.shape_evidence["thin"]
     solid = []
     for i, name in enumerate(key.names):
         with rasterio.open(tmp_path / "t" / name) as t:
@@ -487,3 +487,59 @@ def test_a_side_of_valid_pixels_never_pairs_with_a_side_of_nodata():
     valid_vs_valid = table.cost(4 * 3 + 1, 4 * 4 + 3)
     assert table.coverage[4 * 4 + 1] == 0 and table.coverage[4 * 5 + 3] == 1
     assert void_vs_valid > 10 * valid_vs_valid
+
+
+def _coffee_with_nodata():
+    """Nine 28 px tiles of scikit-image's ``coffee`` (CC0), 3 x 3; the centre
+    tile's right half and the whole of the top-right tile are nodata (as
+    water marked as nodata would be)."""
+    img = skimage_image("coffee")[:, 60:60 + 28 * 3, 150:150 + 28 * 3].astype(np.float32)
+    tiles = [img[:, 28 * r:28 * (r + 1), 28 * c:28 * (c + 1)].copy() for r in range(3) for c in range(3)]
+    valid = [np.ones(t.shape[1:], bool) for t in tiles]
+    valid[4][:, 14:] = False
+    valid[2][:, :] = False
+    valid[2][20:, 22:] = True  # a corner of land away from its left side, so the tile is not blank
+    return EdgeStrips.from_pixels(tiles, valid=valid)
+
+
+def test_two_sides_without_a_shared_valid_row_cost_what_a_seam_earns():
+    """No shared valid row is no evidence either way: such a pair costs the
+    search's reward for a seam, so two nodata sides (water marked as nodata
+    on both) neither attract nor repel against an empty cell. The centre
+    tile's nodata right side against the top-right tile's nodata left side."""
+    table = score_seams(_coffee_with_nodata(), orientations=(0,), measure="mgc")
+    problem = Problem(table, (0,))
+    cost = table.cost(4 * 4 + 1, 4 * 2 + 3)
+    assert table.coverage[4 * 4 + 1] == 0 and table.coverage[4 * 2 + 3] == 0
+    assert float(cost) == pytest.approx(problem.bonus, rel=1e-6)
+    # A seam of shared valid rows keeps its measured cost: the true
+    # neighbours 3 | 4 cost far less than what a seam earns.
+    assert table.cost(4 * 3 + 1, 4 * 4 + 3) < 0.5 * problem.bonus
+
+
+def test_valid_data_facing_an_empty_cell_costs_its_footprint_term():
+    """With nodata, an empty cell is a skipped all-nodata tile: a side of
+    valid data facing one costs what it would against an all-nodata side; a
+    nodata side faces it for free, and so does any side at the grid's
+    border. Without nodata an empty cell is a missing tile and costs nothing."""
+    from stitch.seams import FOOTPRINT_SLACK
+
+    table = score_seams(_coffee_with_nodata(), orientations=(0,), measure="mgc")
+    problem = Problem(table, (0,))
+    holes = table.hole_costs
+    assert holes[4 * 4 + 1] == 0.0  # the centre tile's right side is nodata
+    assert holes[4 * 4 + 3] > 0.0
+    # Against an all-nodata side the left side's footprint term, 26 of 28 rows beyond the slack:
+    assert 28 - FOOTPRINT_SLACK == 26
+    valid_left = Grid(np.array([[-1, 4]]), np.zeros((1, 2), np.int64))
+    nodata_right = Grid(np.array([[4, -1]]), np.zeros((1, 2), np.int64))
+    alone = Grid(np.array([[4]]), np.zeros((1, 1), np.int64))
+    assert problem.fitness(valid_left) == pytest.approx(float(holes[4 * 4 + 3]))
+    assert problem.fitness(nodata_right) == 0.0 and problem.fitness(alone) == 0.0
+    # The swap pass prices it too: tile 4 beside the hole is cheaper with
+    # its nodata side to the hole than with its valid side.
+    assert _polish._cell_cost(nodata_right.tiles, nodata_right.orientations, 0, 0, problem.lookup) == 0.0
+    assert _polish._cell_cost(valid_left.tiles, valid_left.orientations, 0, 1, problem.lookup) > 0.0
+    full = score_seams(EdgeStrips.from_pixels([np.ones((1, 28, 28), np.float32) * i for i in range(4)]),
+                       orientations=(0,), measure="mgc")
+    assert full.hole_costs is None

@@ -14,7 +14,8 @@ from numba import njit
 
 from ..orientation import FACE, STEPS, TURN_TO_FACE
 
-__all__ = ["DCOL", "DROW", "SeamLookup", "SideRanking", "facing_back", "fitness", "partners", "seam_cost"]
+__all__ = ["DCOL", "DROW", "SeamLookup", "SideRanking", "facing_back", "fitness", "hole_cost", "partners",
+           "seam_cost"]
 
 #: Row and column steps for directions 0 up, 1 right, 2 down, 3 left.
 DROW = np.array([s[0] for s in STEPS], dtype=np.int64)
@@ -33,6 +34,7 @@ SeamLookup = namedtuple("SeamLookup", [
     "candidate_costs",  # (4 n, k) float32
     "fallback",         # (4 n,) float32: cost of a pair neither side lists
     "dense",            # bool: blocks hold every cost
+    "hole",             # (4 n,) float32: cost of a side slot facing an empty cell inside the grid
 ])
 SeamLookup.__doc__ = """Seam costs of a :class:`stitch.seams.SeamTable` laid out for the kernels."""
 
@@ -138,4 +140,22 @@ def fitness(gt, go, lookup, bonus):
                 c = seam_cost(lookup, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j])
                 objective += c - bonus
                 total += c
+            objective += hole_cost(gt, go, i, j, lookup)
     return objective, total
+
+
+@njit(cache=True, nogil=True)
+def hole_cost(gt, go, i, j, lookup):
+    """What the sides of the tile in cell (i, j) that face empty cells inside
+    the grid cost (``lookup.hole``; zero without a nodata collar)."""
+    nrows, ncols = gt.shape
+    x = gt[i, j]
+    total = 0.0
+    if x < 0:
+        return total
+    for d in range(4):
+        ni = i + DROW[d]
+        nj = j + DCOL[d]
+        if 0 <= ni < nrows and 0 <= nj < ncols and gt[ni, nj] < 0:
+            total += lookup.hole[4 * x + FACE[go[i, j], d]]
+    return total

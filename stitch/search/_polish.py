@@ -29,6 +29,8 @@ def _cell_cost(gt, go, i, j, lookup):
         y = gt[ni, nj]
         if y >= 0:
             total += seam_cost(lookup, x, go[i, j], d, y, go[ni, nj])
+        else:
+            total += lookup.hole[4 * x + FACE[go[i, j], d]]
     return total
 
 
@@ -184,7 +186,7 @@ def _window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, lookup, edge, right, 
     ``edge[t, q]``: tile ``t`` of the window (``cells_t[t]`` turned
     ``cells_o[t]``) at window cell ``q`` against the tiles around the window;
     ``right[t, u]`` / ``below[t, u]``: tile ``u`` right of / below tile ``t``.
-    Holes cost nothing.
+    An empty cell costs what the sides facing it cost (``lookup.hole``).
     """
     nrows, ncols = gt.shape
     k = h * w
@@ -205,12 +207,20 @@ def _window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, lookup, edge, right, 
                     y = gt[ni, nj]
                     if y >= 0:
                         total += seam_cost(lookup, x, cells_o[t], d, y, go[ni, nj])
+                    else:
+                        total += lookup.hole[4 * x + FACE[cells_o[t], d]]
             edge[t, q] = total
         for u in range(k):
             y = cells_t[u]
-            if x < 0 or y < 0 or u == t:
+            if u == t or (x < 0 and y < 0):
                 right[t, u] = 0.0
                 below[t, u] = 0.0
+            elif y < 0:  # a tile beside an empty cell of the window
+                right[t, u] = lookup.hole[4 * x + FACE[cells_o[t], 1]]
+                below[t, u] = lookup.hole[4 * x + FACE[cells_o[t], 2]]
+            elif x < 0:
+                right[t, u] = lookup.hole[4 * y + FACE[cells_o[u], 3]]
+                below[t, u] = lookup.hole[4 * y + FACE[cells_o[u], 0]]
             else:
                 right[t, u] = seam_cost(lookup, x, cells_o[t], 1, y, cells_o[u])
                 below[t, u] = seam_cost(lookup, x, cells_o[t], 2, y, cells_o[u])

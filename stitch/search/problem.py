@@ -30,6 +30,8 @@ def seam_lookup(table):
         candidate_costs=np.ascontiguousarray(table.candidate_costs, dtype=np.float32),
         fallback=np.ascontiguousarray(table.fallback, dtype=np.float32),
         dense=bool(table.dense),
+        hole=np.ascontiguousarray(np.zeros(4 * table.n_tiles) if table.hole_costs is None else table.hole_costs,
+                                  dtype=np.float32),
     )
 
 

@@ -3,7 +3,8 @@
 Every shape that holds the tiles is tried with one greedy placement (and, for
 sets that may have missing tiles, the box a free greedy placement fills). A
 wrong shape forces seams the tiles do not want, so the right one keeps the
-most best-buddy seams.
+most best-buddy seams. Sets with nodata are judged by the search objective
+instead, which prices their empty cells (skipped all-nodata tiles).
 """
 
 from __future__ import annotations
@@ -268,7 +269,9 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
 
     Shapes that cannot hold the largest trusted segment are not tried (see
     :func:`shapes_to_try`). Of the rest, a wrong shape forces seams the tiles
-    do not want: the right one keeps the most best-buddy pairs; among equals,
+    do not want: the right one keeps the most best-buddy pairs (with a nodata
+    collar: the lowest search objective, which prices empty cells, then the
+    smallest box the tiles fill); among equals,
     the one with fewer cells, then the least elongated, then the cheapest
     seams. Empty cells let a free greedy run dodge seams a full frame forces,
     so with ``regrow_contenders`` the close contenders (within nine tenths of
@@ -336,10 +339,19 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
         elif s[0] * s[1] > n:
             evidence *= max(0.0, 1.0 - HOLE_COST * (s[0] * s[1] - n) / n)
         keys[s] = (-evidence, s[0] * s[1], max(s) / min(s), problem.normalized_cost(grid))
-        scores[s] = {"buddy_pairs": b, "mean_normalized_cost": keys[s][3]}
+        if collar:
+            # With nodata, an empty cell is a skipped all-nodata tile and the
+            # search objective prices it (valid data facing it costs its
+            # footprint term; seams without shared valid rows cost what a
+            # seam earns), so it compares grids with holes directly; among
+            # equals, the smaller box the tiles fill, then fewer cells.
+            box = _placed_box(grid)
+            keys[s] = (problem.fitness(grid), box[0] * box[1]) + keys[s][1:]
+        scores[s] = {"buddy_pairs": b, "mean_normalized_cost": keys[s][-1]}
         if share is not None:
             scores[s]["explained_holes"] = round(share, 4)
-        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f", s[0], s[1], b, keys[s][3])
+        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f, objective %.4g", s[0], s[1], b,
+                  scores[s]["mean_normalized_cost"], problem.fitness(grid))
     ranked = sorted(keys, key=keys.get)
     best = ranked[0]
     # The runner-up is the best shape that is a real alternative: a frame
@@ -353,7 +365,10 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
     margin = None
     if runner_up is not None:
         top, second = -keys[best][0], -keys[runner_up][0]
-        margin = (top - second) / top if top > 0 else 0.0
+        if collar:  # objectives: lower is better, and either sign
+            margin = (top - second) / abs(top) if top != 0 else 0.0
+        else:
+            margin = (top - second) / top if top > 0 else 0.0
     if shape is None:
         log.info("grid %dx%d inferred from %d shapes%s", best[0], best[1], len(shapes),
                  f" (runner-up {runner_up[0]}x{runner_up[1]}, margin {margin:.1%})" if runner_up else "")
