@@ -279,22 +279,27 @@ def shared_rows(left_rows, right_rows, *, flip=False):
     return np.rint(a @ np.ascontiguousarray(b).T)
 
 
-def _masked_costs(block, rows_a, rows_b, edge_a, edge_b, flip, scale, typical):
-    """Costs of a block of sides that hold nodata: the measure where the two
-    sides share :data:`MIN_SHARED_ROWS` valid rows, ``typical`` where they do
-    not, plus the footprint term (``scale`` is a good seam's cost)."""
-    few = shared_rows(rows_a, rows_b, flip=flip) < MIN_SHARED_ROWS - 0.5
-    out = np.where(few | ~np.isfinite(block) | (block < 0), np.float32(typical), block)
-    fp = footprint_mismatch(edge_a, edge_b, flip=flip, slack=FOOTPRINT_SLACK)
-    out += np.float32(FOOTPRINT_WEIGHT) * np.float32(max(scale, 1e-6)) * fp
-    return out.astype(np.float32, copy=False)
+def _evidence(block, rows_a, rows_b, edge_a, edge_b, flip):
+    """What a measured block of sides that hold nodata says: its costs, ``inf``
+    where the two sides share fewer than :data:`MIN_SHARED_ROWS` valid rows
+    (or the measure had nothing to compare), and their footprint mismatch."""
+    none = shared_rows(rows_a, rows_b, flip=flip) < MIN_SHARED_ROWS - 0.5
+    none |= ~np.isfinite(block)
+    none |= block < 0
+    costs = np.where(none, np.float32(np.inf), block).astype(np.float32, copy=False)
+    return costs, footprint_mismatch(edge_a, edge_b, flip=flip, slack=FOOTPRINT_SLACK)
+
+
+def _footprint_term(mismatch, scale):
+    """Cost of a footprint mismatch, in units of ``scale`` (a good seam's cost)."""
+    return np.float32(FOOTPRINT_WEIGHT) * np.float32(max(scale, 1e-6)) * mismatch
 
 
 def _hole_costs(boundary_ok, scale):
     """Per side slot, the footprint term of the side against an all-nodata one."""
-    share = np.stack([np.clip((v.sum(axis=1) - FOOTPRINT_SLACK) / max(v.shape[1], 1), 0.0, 1.0)
-                      for v in boundary_ok], axis=1).reshape(-1)
-    return (np.float32(FOOTPRINT_WEIGHT) * np.float32(max(scale, 1e-6)) * share).astype(np.float32)
+    share = [footprint_mismatch(v, np.zeros((1, v.shape[1]), bool), flip=True, slack=FOOTPRINT_SLACK)[:, 0]
+             for v in boundary_ok]
+    return _footprint_term(np.stack(share, axis=1).reshape(-1), scale).astype(np.float32)
 
 
 def _typical_costs(fn, sides, rows_ok, boundary_ok, unique, dead, pool):
@@ -303,47 +308,47 @@ def _typical_costs(fn, sides, rows_ok, boundary_ok, unique, dead, pool):
     typical cost of a plausible seam: the median over sampled live side
     slots of their second-best cost, as the search's reward is taken from
     the finished table (:class:`stitch.search.problem.Problem`). Pairs with
-    too few shared rows are left out of both. On sets of at most
-    :data:`TYPICAL_SAMPLE` tiles every slot is sampled, and the measured
-    blocks are returned too, so that they are computed once."""
+    too few shared rows are left out of both.
+
+    On sets of at most :data:`TYPICAL_SAMPLE` tiles every slot is sampled,
+    and each block's :func:`_evidence` is returned too, so that the table is
+    not measured twice; otherwise that list is empty.
+    """
     n = sides[0].shape[0]
     sample = np.unique(np.linspace(0, n - 1, min(n, TYPICAL_SAMPLE)).astype(np.int64))
-    scales = []
-    two = np.full((4, len(sample), 2), np.inf, np.float32)  # two cheapest per sampled slot
-
-    def fold(side, costs):
-        both = np.concatenate([two[side], costs], axis=1)
-        two[side] = np.partition(both, 1, axis=1)[:, :2] if both.shape[1] > 2 else np.sort(both, axis=1)[:, :2]
-
     every = len(sample) == n
-    raw = []  # the measured blocks, when every row was sampled: the table reuses them
+    tiles = np.arange(n)
+    two = np.full((4, len(sample), 2), np.inf, np.float32)  # the two cheapest costs of each sampled slot
+    scales, evidence = [], []
+
+    def priced(rows, cols, a, b, f, scale=None):
+        """Sampled block with the footprint term; its scale from it unless given."""
+        ev = _evidence(_rows_in_parallel(fn, sides[a][rows], sides[b][cols], rows_ok[a][rows], rows_ok[b][cols],
+                                         bool(f), pool),
+                       rows_ok[a][rows], rows_ok[b][cols], boundary_ok[a][rows], boundary_ok[b][cols], bool(f))
+        costs = ev[0].copy()
+        costs[tiles[rows][:, None] == tiles[cols][None, :]] = np.inf  # a tile never meets itself
+        if scale is None:
+            best = costs.min(axis=1)
+            best = best[np.isfinite(best)]
+            scale = np.float32(np.median(best)) if best.size else np.float32(1.0)
+        return ev, costs + _footprint_term(ev[1], scale), scale
+
+    def fold(side, costs):  # costs: (sampled slots, partners)
+        two[side] = np.partition(np.concatenate([two[side], costs], axis=1), 1, axis=1)[:, :2]
+
     for a, b, f in unique:
-        for rows, cols, side, transpose in ((sample, slice(None), a, False), (slice(None), sample, b, True)):
-            if transpose and a == b:
-                continue  # the rows already gave this side's entries
-            if transpose and every:
-                fold(side, blk.T)  # every tile sampled: the block of the rows holds the columns too
-                continue
-            ra, rb = rows_ok[a][rows], rows_ok[b][cols]
-            measured = _rows_in_parallel(fn, sides[a][rows], sides[b][cols], ra, rb, bool(f), pool)
-            if every:
-                raw.append(measured)
-            blk = np.where(np.isfinite(measured) & (measured >= 0), measured, np.inf).astype(np.float32)
-            blk[shared_rows(ra, rb, flip=bool(f)) < MIN_SHARED_ROWS - 0.5] = np.inf
-            ia = np.arange(n)[rows][:, None]
-            ib = np.arange(n)[cols][None, :]
-            blk[ia == ib] = np.inf  # a tile never meets itself
-            if not transpose:
-                best = blk.min(axis=1)
-                best = best[np.isfinite(best)]
-                scales.append(np.float32(np.median(best)) if best.size else np.float32(1.0))
-            fp = footprint_mismatch(boundary_ok[a][rows], boundary_ok[b][cols], flip=bool(f), slack=FOOTPRINT_SLACK)
-            blk += np.float32(FOOTPRINT_WEIGHT) * max(scales[-1], np.float32(1e-6)) * fp
-            fold(side, blk.T if transpose else blk)
+        ev, rows_priced, scale = priced(sample, slice(None), a, b, f)
+        scales.append(scale)
+        if every:
+            evidence.append(ev)
+        fold(a, rows_priced)
+        if a != b:  # side b's entries: the block's columns
+            fold(b, rows_priced.T if every else priced(slice(None), sample, a, b, f, scale)[1].T)
     live = two[:, :, 1][~dead[sample].T]
     live = live[np.isfinite(live) & (live > 0)]
-    typical = np.float32(np.median(live)) if live.size else np.float32(np.median(scales)) if scales else np.float32(1.0)
-    return scales, typical, raw
+    typical = np.float32(np.median(live) if live.size else np.median(scales))
+    return scales, typical, evidence
 
 
 def _neutralize(block, dead_rows, dead_cols):
@@ -674,26 +679,26 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     pool = ThreadPoolExecutor(max_workers=os.cpu_count() or 1)
     with threadpool_limits(limits=1, user_api="blas"), pool:
         if masked:
-            scales, typical, measured = _typical_costs(fn, sides, rows_ok, boundary_ok, unique, dead, pool)
+            scales, typical, evidence = _typical_costs(fn, sides, rows_ok, boundary_ok, unique, dead, pool)
         for idx, (a, b, f) in enumerate(unique):
-            rv_a = rows_ok[a] if masked else None
-            rv_b = rows_ok[b] if masked else None
             col_codes = 2 * (4 * tiles + b) + f
             for r0 in range(0, n, chunk):
                 r1 = min(n, r0 + chunk)
-                if masked and measured and r1 - r0 == n:
-                    blk = measured[idx]
-                else:
-                    blk = _rows_in_parallel(fn, sides[a][r0:r1], sides[b], None if rv_a is None else rv_a[r0:r1],
-                                            rv_b, bool(f), pool)
                 if masked:
-                    # Too few shared rows is no evidence either way; the
-                    # valid-data footprint is: a nodata edge that crosses a
-                    # seam continues on the other side.
-                    blk = _masked_costs(blk, rv_a[r0:r1], rv_b, boundary_ok[a][r0:r1], boundary_ok[b], bool(f),
-                                        scales[idx], typical)
-                    blk = _neutralize(blk, blank[r0:r1], blank)
+                    # Too few shared rows is no evidence either way (the pair
+                    # costs a typical seam); the valid-data footprint is: a
+                    # nodata edge that crosses a seam continues on the other side.
+                    if evidence and r1 - r0 == n:
+                        costs, mismatch = evidence[idx]
+                    else:
+                        ra, rb = rows_ok[a][r0:r1], rows_ok[b]
+                        costs, mismatch = _evidence(_rows_in_parallel(fn, sides[a][r0:r1], sides[b], ra, rb, bool(f),
+                                                                      pool),
+                                                    ra, rb, boundary_ok[a][r0:r1], boundary_ok[b], bool(f))
+                    blk = np.where(np.isfinite(costs), costs, typical) + _footprint_term(mismatch, scales[idx])
+                    blk = _neutralize(blk.astype(np.float32, copy=False), blank[r0:r1], blank)
                 else:
+                    blk = _rows_in_parallel(fn, sides[a][r0:r1], sides[b], None, None, bool(f), pool)
                     blk = _neutralize(blk, dead[r0:r1, a], dead[:, b])
                 blk[np.arange(r1 - r0), np.arange(r0, r1)] = np.inf  # a tile never meets itself
                 if dense:

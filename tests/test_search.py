@@ -529,8 +529,10 @@ def test_valid_data_facing_an_empty_cell_costs_its_footprint_term():
     holes = table.hole_costs
     assert holes[4 * 4 + 1] == 0.0  # the centre tile's right side is nodata
     assert holes[4 * 4 + 3] > 0.0
-    # Against an all-nodata side the left side's footprint term, 26 of 28 rows beyond the slack:
-    assert 28 - FOOTPRINT_SLACK == 26
+    # Against an all-nodata side the left side's footprint term covers 26 of
+    # its 28 rows (two rows of slack), the top side's 12 (14 valid pixels):
+    assert FOOTPRINT_SLACK == 2
+    assert holes[4 * 4 + 0] / holes[4 * 4 + 3] == pytest.approx(12 / 26)
     valid_left = Grid(np.array([[-1, 4]]), np.zeros((1, 2), np.int64))
     nodata_right = Grid(np.array([[4, -1]]), np.zeros((1, 2), np.int64))
     alone = Grid(np.array([[4]]), np.zeros((1, 1), np.int64))

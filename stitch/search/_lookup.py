@@ -14,8 +14,8 @@ from numba import njit
 
 from ..orientation import FACE, STEPS, TURN_TO_FACE
 
-__all__ = ["DCOL", "DROW", "SeamLookup", "SideRanking", "facing_back", "fitness", "hole_cost", "partners",
-           "seam_cost"]
+__all__ = ["DCOL", "DROW", "SeamLookup", "SideRanking", "facing_back", "fitness", "partners", "seam_cost",
+           "side_hole"]
 
 #: Row and column steps for directions 0 up, 1 right, 2 down, 3 left.
 DROW = np.array([s[0] for s in STEPS], dtype=np.int64)
@@ -122,7 +122,9 @@ def fitness(gt, go, lookup, bonus):
 
     With every cell filled the seam count is fixed and the first is the total
     seam cost shifted by a constant. With holes, ``bonus`` (a typical cost of
-    a plausible seam) keeps the search from scattering holes to drop seams.
+    a plausible seam) keeps the search from scattering holes to drop seams,
+    and each side facing an empty cell adds what it costs there
+    (:func:`side_hole`).
     """
     nrows, ncols = gt.shape
     objective = 0.0
@@ -130,32 +132,25 @@ def fitness(gt, go, lookup, bonus):
     for i in range(nrows):
         for j in range(ncols):
             x = gt[i, j]
-            if x < 0:
-                continue
-            if j + 1 < ncols and gt[i, j + 1] >= 0:
-                c = seam_cost(lookup, x, go[i, j], 1, gt[i, j + 1], go[i, j + 1])
-                objective += c - bonus
-                total += c
-            if i + 1 < nrows and gt[i + 1, j] >= 0:
-                c = seam_cost(lookup, x, go[i, j], 2, gt[i + 1, j], go[i + 1, j])
-                objective += c - bonus
-                total += c
-            objective += hole_cost(gt, go, i, j, lookup)
+            for d in (1, 2):  # each pair of cells once: to the right, below
+                ni = i + DROW[d]
+                nj = j + DCOL[d]
+                if ni >= nrows or nj >= ncols:
+                    continue
+                y = gt[ni, nj]
+                if x >= 0 and y >= 0:
+                    c = seam_cost(lookup, x, go[i, j], d, y, go[ni, nj])
+                    objective += c - bonus
+                    total += c
+                elif x >= 0:
+                    objective += side_hole(lookup, x, go[i, j], d)
+                elif y >= 0:
+                    objective += side_hole(lookup, y, go[ni, nj], (d + 2) % 4)
     return objective, total
 
 
 @njit(cache=True, nogil=True)
-def hole_cost(gt, go, i, j, lookup):
-    """What the sides of the tile in cell (i, j) that face empty cells inside
-    the grid cost (``lookup.hole``; zero without a nodata collar)."""
-    nrows, ncols = gt.shape
-    x = gt[i, j]
-    total = 0.0
-    if x < 0:
-        return total
-    for d in range(4):
-        ni = i + DROW[d]
-        nj = j + DCOL[d]
-        if 0 <= ni < nrows and 0 <= nj < ncols and gt[ni, nj] < 0:
-            total += lookup.hole[4 * x + FACE[go[i, j], d]]
-    return total
+def side_hole(lookup, x, ox, d):
+    """Cost of tile x (orientation ox) facing an empty cell in direction d
+    (``lookup.hole``; zero without nodata)."""
+    return lookup.hole[4 * x + FACE[ox, d]]

@@ -8,7 +8,7 @@ import numpy as np
 from numba import njit
 
 from ..orientation import FACE
-from ._lookup import DCOL, DROW, facing_back, seam_cost
+from ._lookup import DCOL, DROW, facing_back, seam_cost, side_hole
 
 __all__ = ["improve", "permute_windows"]
 
@@ -30,7 +30,7 @@ def _cell_cost(gt, go, i, j, lookup):
         if y >= 0:
             total += seam_cost(lookup, x, go[i, j], d, y, go[ni, nj])
         else:
-            total += lookup.hole[4 * x + FACE[go[i, j], d]]
+            total += side_hole(lookup, x, go[i, j], d)
     return total
 
 
@@ -208,7 +208,7 @@ def _window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, lookup, edge, right, 
                     if y >= 0:
                         total += seam_cost(lookup, x, cells_o[t], d, y, go[ni, nj])
                     else:
-                        total += lookup.hole[4 * x + FACE[cells_o[t], d]]
+                        total += side_hole(lookup, x, cells_o[t], d)
             edge[t, q] = total
         for u in range(k):
             y = cells_t[u]
@@ -216,11 +216,11 @@ def _window_tables(gt, go, r0, c0, h, w, cells_t, cells_o, lookup, edge, right, 
                 right[t, u] = 0.0
                 below[t, u] = 0.0
             elif y < 0:  # a tile beside an empty cell of the window
-                right[t, u] = lookup.hole[4 * x + FACE[cells_o[t], 1]]
-                below[t, u] = lookup.hole[4 * x + FACE[cells_o[t], 2]]
+                right[t, u] = side_hole(lookup, x, cells_o[t], 1)
+                below[t, u] = side_hole(lookup, x, cells_o[t], 2)
             elif x < 0:
-                right[t, u] = lookup.hole[4 * y + FACE[cells_o[u], 3]]
-                below[t, u] = lookup.hole[4 * y + FACE[cells_o[u], 0]]
+                right[t, u] = side_hole(lookup, y, cells_o[u], 3)
+                below[t, u] = side_hole(lookup, y, cells_o[u], 0)
             else:
                 right[t, u] = seam_cost(lookup, x, cells_o[t], 1, y, cells_o[u])
                 below[t, u] = seam_cost(lookup, x, cells_o[t], 2, y, cells_o[u])

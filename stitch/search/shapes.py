@@ -321,7 +321,7 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
                 buddies[s] = problem.buddy_seams(grids[s])
     # Share of the sides facing each grid's empty cells that hold nodata.
     # Below MIN_FILL a grid's empty cells must be explained by the collar,
-    # as around a skipped tile; in a collar the share also weighs the evidence.
+    # as around a skipped tile.
     explained = {s: _explained_holes(problem, g) for s, g in grids.items() if s[0] * s[1] > n}
     for s in [s for s in grids if n < MIN_FILL * s[0] * s[1]]:
         if len(grids) > 1 and explained[s] < EXPLAINED_SHARE:
@@ -330,15 +330,8 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
     scores, keys = {}, {}
     collar = problem.table.has_collar
     for s, grid in grids.items():
-        b = buddies[s]
-        evidence = b if s[0] * s[1] == n else b / HOLES_MARGIN
-        share = explained.get(s) if collar else None
-        if share is not None:
-            # In a collar, empty cells next to valid data count against a grid.
-            evidence *= 0.5 + 0.5 * share
-        elif s[0] * s[1] > n:
-            evidence *= max(0.0, 1.0 - HOLE_COST * (s[0] * s[1] - n) / n)
-        keys[s] = (-evidence, s[0] * s[1], max(s) / min(s), problem.normalized_cost(grid))
+        b, cells = buddies[s], s[0] * s[1]
+        objective, normalized = problem.fitness(grid), problem.normalized_cost(grid)
         if collar:
             # With nodata, an empty cell is a skipped all-nodata tile and the
             # search objective prices it (valid data facing it costs its
@@ -346,12 +339,15 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
             # seam earns), so it compares grids with holes directly; among
             # equals, the smaller box the tiles fill, then fewer cells.
             box = _placed_box(grid)
-            keys[s] = (problem.fitness(grid), box[0] * box[1]) + keys[s][1:]
-        scores[s] = {"buddy_pairs": b, "mean_normalized_cost": keys[s][-1]}
-        if share is not None:
-            scores[s]["explained_holes"] = round(share, 4)
+            keys[s] = (objective, box[0] * box[1], cells, max(s) / min(s), normalized)
+        else:
+            evidence = b if cells == n else b / HOLES_MARGIN * max(0.0, 1.0 - HOLE_COST * (cells - n) / n)
+            keys[s] = (-evidence, cells, max(s) / min(s), normalized)
+        scores[s] = {"buddy_pairs": b, "mean_normalized_cost": normalized}
+        if collar and s in explained:
+            scores[s]["explained_holes"] = round(explained[s], 4)
         log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f, objective %.4g", s[0], s[1], b,
-                  scores[s]["mean_normalized_cost"], problem.fitness(grid))
+                  normalized, objective)
     ranked = sorted(keys, key=keys.get)
     best = ranked[0]
     # The runner-up is the best shape that is a real alternative: a frame
@@ -364,11 +360,8 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
     runner_up = others[0] if others else None
     margin = None
     if runner_up is not None:
-        top, second = -keys[best][0], -keys[runner_up][0]
-        if collar:  # objectives: lower is better, and either sign
-            margin = (top - second) / abs(top) if top != 0 else 0.0
-        else:
-            margin = (top - second) / top if top > 0 else 0.0
+        top, second = -keys[best][0], -keys[runner_up][0]  # evidence, or (with a collar) minus the objective
+        margin = (top - second) / abs(top) if top else 0.0
     if shape is None:
         log.info("grid %dx%d inferred from %d shapes%s", best[0], best[1], len(shapes),
                  f" (runner-up {runner_up[0]}x{runner_up[1]}, margin {margin:.1%})" if runner_up else "")
