@@ -1,9 +1,9 @@
-"""Mutation testing of the georeferencing, control, layout and scoring code.
+"""Mutation testing of the georeferencing, control, layout, mosaic and scoring code.
 
 mutmut (a maintained mutation tester, ``pip install mutmut==3.2.0``; a
 benchmark-only tool, not a stitch dependency) changes one operator, constant
 or name at a time in ``stitch/georef.py``, ``stitch/control.py``,
-``stitch/layout.py`` and ``stitch/puzzles.py`` and runs the tests that reach
+``stitch/layout.py``, ``stitch/mosaic.py`` and ``stitch/puzzles.py`` and runs the tests that reach
 the changed function; a mutant no test notices is a place where the suite
 would let a bug through. Modules with numba kernels are not mutated (numba
 cannot compile mutmut's trampolines) and tests that run stitch in a child
@@ -31,9 +31,10 @@ import tempfile
 from pathlib import Path
 
 REPO = Path(__file__).resolve().parent.parent
-MUTATED = ["stitch/georef.py", "stitch/control.py", "stitch/layout.py", "stitch/puzzles.py"]
+MUTATED = ["stitch/georef.py", "stitch/control.py", "stitch/layout.py", "stitch/mosaic.py", "stitch/puzzles.py"]
 TESTS = ["tests/test_georef.py", "tests/test_control.py", "tests/test_layout.py", "tests/test_metrics.py",
-         "tests/test_roundtrip.py", "tests/test_real_rasters.py", "tests/test_errors.py"]
+         "tests/test_roundtrip.py", "tests/test_real_rasters.py", "tests/test_errors.py", "tests/test_outputs.py",
+         "tests/test_rasters.py"]
 # Tests that run stitch in a child process, and the fuzzers (slow, and not aimed at these modules).
 LEFT_OUT = ["verbose_shows", "signals_leave", "full_disk", "overviews_are_not_built", "fuzz", "same_seed_same_bytes"]
 

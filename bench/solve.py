@@ -133,6 +133,10 @@ def _plain_ga(table, shape, orients, seconds, rng):
 
 def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None, tile=TILE, infer=False):
     edges, key = _puzzle(img, rows, cols, tile, turns, rng)
+    # The plain GA runs for a time budget, so how many numbers it draws
+    # varies from run to run: it gets a generator of its own, and the next
+    # puzzles are cut the same way on every run.
+    ga_rng = np.random.default_rng(rng.integers(2**63))
     orients = allowed_orientations(90, False) if turns else (0,)
     t0 = time.perf_counter()
     table = score_seams(edges, orientations=orients)
@@ -141,7 +145,7 @@ def run_case(name, img, rows, cols, turns, rng, methods, time_limit=None, tile=T
     for method in methods:
         t0 = time.perf_counter()
         if method == "plain GA":
-            grid = _plain_ga(table, (rows, cols), orients, out["greedy + evolution"][3] - t_seams, rng)
+            grid = _plain_ga(table, (rows, cols), orients, out["greedy + evolution"][3] - t_seams, ga_rng)
         else:
             strategy = "greedy" if method == "greedy" else "evolution"
             res = search_placement(table, shape=None if infer else (rows, cols), orientations=orients, rng=1,
