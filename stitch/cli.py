@@ -25,12 +25,29 @@ from .measures import DEFAULT_MEASURE
 from .orientation import TURN_MODES
 from .tiles import MAX_TILE_PIXELS
 
+
+
+class _Command(typer.core.TyperCommand):
+    """A command whose usage line names its arguments as the help lists them
+    (``stitch solve [OPTIONS] TILES_DIR``), without typer's braces."""
+
+    def collect_usage_pieces(self, ctx):
+        pieces = [self.options_metavar] if self.options_metavar else []
+        for param in self.get_params(ctx):
+            if param.param_type_name == "argument":
+                pieces.append(param.metavar or param.name.upper())
+        return pieces
+
+
+# Plain help (rich_markup_mode=None): typer's boxed help labels every flag
+# "<bool>", and a flag takes no value.
 app = typer.Typer(
     name="stitch",
     help="Put raster tiles that lost their coordinates back in place and write a georeferenced mosaic.",
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    rich_markup_mode=None,
     context_settings={"help_option_names": ["-h", "--help"]},
 )
 
@@ -40,10 +57,10 @@ log = logging.getLogger("stitch")
 DOUBTFUL_EXIT = 3
 
 # Options shared by several commands, defined once.
-Verbose = Annotated[int, typer.Option("--verbose", "-v", count=True, help="More detail; -vv for debug logging and tracebacks.")]
+Verbose = Annotated[int, typer.Option("--verbose", "-v", count=True, show_default=False, help="More detail; -vv for debug logging and tracebacks.")]
 Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="Only errors.")]
 Overwrite = Annotated[bool, typer.Option("--overwrite", help="Replace existing outputs.")]
-Seed = Annotated[int, typer.Option("--seed", help="Seed of every random choice; the same seed gives the same result.")]
+Seed = Annotated[int, typer.Option("--seed", metavar="N", help="Seed of every random choice; the same seed gives the same result.")]
 
 
 class Terminated(KeyboardInterrupt):
@@ -229,36 +246,36 @@ def _grid_line(shape, ev):
     return f"{grid} inferred ({runner}{held})"
 
 
-@app.command()
+@app.command(cls=_Command, short_help="Place the tiles and write a georeferenced mosaic.")
 def solve(
-    tiles_dir: Annotated[Path, typer.Argument(help="Folder of GeoTIFF, PNG or JPEG tiles of one size.")],
-    output: Annotated[Path, typer.Option("--output", "-o", help="Mosaic GeoTIFF to write (.tif).")],
-    grid: Annotated[Optional[str], typer.Option(help="Grid as ROWSxCOLS; inferred when not given.")] = None,
-    rotations: Annotated[int, typer.Option(help="Turns a tile may need: 0 none, 180 half turns, 90 any quarter turn.")] = 0,
+    tiles_dir: Annotated[Path, typer.Argument(metavar="TILES_DIR", help="Folder of GeoTIFF, PNG or JPEG tiles of one size.")],
+    output: Annotated[Path, typer.Option("--output", "-o", metavar="OUT.tif", help="Mosaic GeoTIFF to write.")],
+    grid: Annotated[Optional[str], typer.Option(metavar="ROWSxCOLS", help="Grid shape, e.g. 8x10; inferred when not given.")] = None,
+    rotations: Annotated[int, typer.Option(metavar="0|180|90", help="Turns a tile may need: 0 none, 180 half turns, 90 any quarter turn (square tiles).")] = 0,
     mirrored: Annotated[bool, typer.Option("--mirrored", help="Tiles may also be mirrored left-right.")] = False,
-    seam: Annotated[str, typer.Option(help=_measure_help())] = DEFAULT_MEASURE,
-    search: Annotated[str, typer.Option(help="Search strategy: evolution or greedy.")] = "evolution",
-    population: Annotated[int, typer.Option(help="Placements per generation (0: by tile count).")] = 0,
-    generations: Annotated[int, typer.Option(help="Most generations (0: by tile count).")] = 0,
+    seam: Annotated[str, typer.Option(metavar="NAME", help=_measure_help())] = DEFAULT_MEASURE,
+    search: Annotated[str, typer.Option(metavar="NAME", help="Search strategy: evolution or greedy (or one a plugin adds).")] = "evolution",
+    population: Annotated[int, typer.Option(metavar="N", help="Placements per generation (0: by tile count).")] = 0,
+    generations: Annotated[int, typer.Option(metavar="N", help="Most generations (0: by tile count).")] = 0,
     time_limit: Annotated[Optional[float], typer.Option(
-        help="Seconds the whole placement search may take (grid inference included); "
+        metavar="SECONDS", help="Seconds the whole placement search may take (grid inference included); "
              "the best placement found by then is used.")] = None,
     bounds: Annotated[Optional[tuple[float, float, float, float]], typer.Option(
-        help="Mosaic extent WEST SOUTH EAST NORTH in --crs units.")] = None,
+        metavar="W S E N", help="Mosaic extent: west south east north, four numbers in --crs units.")] = None,
     origin: Annotated[Optional[tuple[float, float]], typer.Option(
-        help="Map X Y of the mosaic's upper-left corner (with --pixel-size).")] = None,
-    pixel_size: Annotated[Optional[float], typer.Option(help="Ground size of a pixel (with --origin).")] = None,
-    pixel_size_y: Annotated[Optional[float], typer.Option(help="Pixel height when it differs from --pixel-size.")] = None,
+        metavar="X Y", help="Map x and y of the mosaic's upper-left corner, in --crs units (with --pixel-size).")] = None,
+    pixel_size: Annotated[Optional[float], typer.Option(metavar="SIZE", help="Ground size of a pixel in --crs units (with --origin).")] = None,
+    pixel_size_y: Annotated[Optional[float], typer.Option(metavar="SIZE", help="Pixel height when it differs from --pixel-size.")] = None,
     gcps: Annotated[Optional[Path], typer.Option(
-        help="Ground control CSV tile,col,row,x,y (pixel/line inside the tile; map x, y in --crs).")] = None,
+        metavar="FILE.csv", help="Ground control CSV tile,col,row,x,y (pixel/line inside the tile; map x, y in --crs).")] = None,
     similarity: Annotated[bool, typer.Option("--similarity", help="Fit control points with 4 parameters, not 6.")] = False,
-    crs: Annotated[Optional[str], typer.Option(help="CRS of --bounds/--origin/--gcps, e.g. EPSG:32633.")] = None,
+    crs: Annotated[Optional[str], typer.Option(metavar="CRS", help="CRS of --bounds/--origin/--gcps, e.g. EPSG:32633.")] = None,
     pin: Annotated[Optional[list[str]], typer.Option(
-        help="Known cell of a tile, NAME=ROW,COL (row 0 at the top); repeat for more. Pinned tiles never move.")] = None,
-    report: Annotated[Optional[Path], typer.Option(help="Report folder (default: OUT's stem + _report).")] = None,
+        metavar="NAME=ROW,COL", help="Known cell of a tile, NAME=ROW,COL (row 0 at the top); repeat for more. Pinned tiles never move.")] = None,
+    report: Annotated[Optional[Path], typer.Option(metavar="DIR", help="Report folder (default: OUT's stem + _report).")] = None,
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
     cog: Annotated[bool, typer.Option("--cog", help="Write a Cloud Optimized GeoTIFF (GDAL's COG driver).")] = False,
-    max_tile_pixels: Annotated[int, typer.Option(help="Refuse tiles whose header claims more pixels.")] = MAX_TILE_PIXELS,
+    max_tile_pixels: Annotated[int, typer.Option(metavar="N", help="Refuse tiles whose header claims more pixels.")] = MAX_TILE_PIXELS,
     fail_if_doubtful: Annotated[bool, typer.Option(
         "--fail-if-doubtful", help=f"Exit with code {DOUBTFUL_EXIT} when the run's verdict is doubtful "
                                    "(the outputs are still written), for scripts.")] = False,
@@ -319,18 +336,18 @@ def solve(
     raise typer.Exit(code=exit_code)
 
 
-@app.command()
+@app.command(cls=_Command, short_help="Cut a raster into tiles with an answer key.")
 def cut(
-    raster: Annotated[Path, typer.Argument(help="Raster to cut (any GDAL-readable file).")],
-    output: Annotated[Path, typer.Option("--output", "-o", help="Folder for the tiles.")],
-    tile_size: Annotated[str, typer.Option(help="Tile size PX or WIDTHxHEIGHT.")],
+    raster: Annotated[Path, typer.Argument(metavar="RASTER", help="Raster to cut (any GDAL-readable file).")],
+    output: Annotated[Path, typer.Option("--output", "-o", metavar="DIR", help="Folder for the tiles.")],
+    tile_size: Annotated[str, typer.Option(metavar="PX|WxH", help="Tile size in pixels: 256, or WIDTHxHEIGHT such as 256x128.")],
     shuffle: Annotated[bool, typer.Option("--shuffle", help="Position-free tile names in random order.")] = False,
     strip_georef: Annotated[bool, typer.Option("--strip-georef", help="Drop georeferencing from the tiles.")] = False,
-    keep_georef: Annotated[int, typer.Option(help="With --strip-georef: tiles (random, upright) that keep it.")] = 0,
-    rotate: Annotated[int, typer.Option(help="Store tiles turned at random: 0, 180 (half turns) or 90 (quarter turns).")] = 0,
+    keep_georef: Annotated[int, typer.Option(metavar="N", help="With --strip-georef: this many tiles (random, upright) keep it.")] = 0,
+    rotate: Annotated[int, typer.Option(metavar="0|180|90", help="Store tiles turned at random: 0, 180 (half turns) or 90 (quarter turns).")] = 0,
     mirror: Annotated[bool, typer.Option("--mirror", help="Store tiles mirrored at random.")] = False,
-    tile_format: Annotated[str, typer.Option("--format", help="Tile format: tif or png.")] = "tif",
-    key: Annotated[Optional[Path], typer.Option(help="Answer key CSV (default: OUTPUT/answer_key.csv).")] = None,
+    tile_format: Annotated[str, typer.Option("--format", metavar="tif|png", help="Tile format.")] = "tif",
+    key: Annotated[Optional[Path], typer.Option(metavar="FILE.csv", help="Answer key CSV (default: DIR/answer_key.csv).")] = None,
     skip_empty: Annotated[bool, typer.Option("--skip-empty", help="Do not write tiles that hold only nodata, as tilers skip them.")] = False,
     partial: Annotated[bool, typer.Option("--partial", help="Keep the raster's remainder as narrower and shorter tiles in the last column and row.")] = False,
     seed: Seed = 0,
@@ -357,11 +374,11 @@ def cut(
         typer.echo(f"wrote answer key {result.key_path}")
 
 
-@app.command()
+@app.command(cls=_Command, short_help="Compare a placement with an answer key.")
 def score(
-    placement: Annotated[Path, typer.Argument(help="placement.csv written by solve.")],
-    key: Annotated[Path, typer.Argument(help="Answer key in the same format (from cut).")],
-    frame: Annotated[str, typer.Option(help="Forgive a global turn: auto, fixed or free.")] = "auto",
+    placement: Annotated[Path, typer.Argument(metavar="PLACEMENT.csv", help="placement.csv written by solve.")],
+    key: Annotated[Path, typer.Argument(metavar="KEY.csv", help="Answer key in the same format (from cut).")],
+    frame: Annotated[str, typer.Option(metavar="auto|fixed|free", help="Forgive a global turn of the whole placement: auto (when tiles were turned), fixed (never) or free (always).")] = "auto",
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON for scripts.")] = False,
     verbose: Verbose = 0,
 ):
@@ -384,12 +401,12 @@ def score(
         typer.echo(f"missing from the placement: {scores.missing} tile(s)")
 
 
-@app.command()
+@app.command(cls=_Command, short_help="Check a tile folder before solving.")
 def inspect(
-    tiles_dir: Annotated[Path, typer.Argument(help="Folder of tiles to check.")],
+    tiles_dir: Annotated[Path, typer.Argument(metavar="TILES_DIR", help="Folder of tiles to check.")],
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
-    grid: Annotated[Optional[str], typer.Option(help="Grid you would give solve, as ROWSxCOLS.")] = None,
-    rotations: Annotated[int, typer.Option(help="Turns a tile may need, as for solve.")] = 0,
+    grid: Annotated[Optional[str], typer.Option(metavar="ROWSxCOLS", help="Grid you would give solve.")] = None,
+    rotations: Annotated[int, typer.Option(metavar="0|180|90", help="Turns a tile may need, as for solve.")] = 0,
     mirrored: Annotated[bool, typer.Option("--mirrored", help="Tiles may also be mirrored, as for solve.")] = False,
     infer: Annotated[bool, typer.Option(
         "--infer", help="Also place the tiles as solve would (nothing written; takes about as long) and report "
@@ -435,7 +452,7 @@ def inspect(
         raise typer.Exit(code=1)
 
 
-@app.command()
+@app.command(cls=_Command, short_help="List seam measures and search strategies.")
 def plugins():
     """List the seam measures and search strategies installed (built in and by plugins)."""
     from .search import available_searches

@@ -25,8 +25,8 @@ from pathlib import Path
 
 from .errors import OutputError, OutputExistsError
 
-__all__ = ["atomic_path", "check_outputs", "output_lock", "readable_path", "remove_stale_partials", "staged",
-           "write_bytes_atomic", "write_text_atomic"]
+__all__ = ["atomic_path", "check_outputs", "output_lock", "readable_path", "remove_stale_partials", "retire",
+           "staged", "write_bytes_atomic", "write_text_atomic"]
 
 log = logging.getLogger(__name__)
 
@@ -45,6 +45,7 @@ class _Stage:
     def __init__(self, overwrite):
         self.overwrite = overwrite
         self.pending = []  # (temporary, final)
+        self.retired = []  # old outputs this set no longer has
 
     def commit(self):
         for _, final in self.pending:
@@ -53,12 +54,15 @@ class _Stage:
         while self.pending:
             os.replace(*self.pending[0])
             self.pending.pop(0)
+        while self.retired:
+            self.retired.pop().unlink(missing_ok=True)
 
     def discard(self):
         for tmp, _ in self.pending:
             with contextlib.suppress(OSError):
                 tmp.unlink()
         self.pending.clear()
+        self.retired.clear()
 
 
 @contextlib.contextmanager
@@ -200,6 +204,22 @@ def atomic_path(path, *, overwrite=False):
         with contextlib.suppress(OSError):
             tmp.unlink()
         raise
+
+
+def retire(path, *, overwrite=False):
+    """Remove an old output that the set being written no longer has (a
+    world file beside a mosaic now in pixel space), so that no stale sidecar
+    describes the new file. Only with ``overwrite`` (without it, such a file
+    was refused before anything was written); inside :func:`staged`, when the
+    set is renamed into place."""
+    path = Path(path)
+    if not overwrite or not path.exists():
+        return
+    stage = _STAGE.get()
+    if stage is not None:
+        stage.retired.append(path)
+    else:
+        path.unlink(missing_ok=True)
 
 
 def write_bytes_atomic(path, data, *, overwrite=False):

@@ -25,6 +25,7 @@ import rasterio
 import rasterio.transform
 from affine import Affine
 from rasterio.crs import CRS
+from rasterio.enums import WktVersion
 from rasterio.errors import CRSError
 
 from .errors import GeoreferenceError, OptionError
@@ -37,6 +38,8 @@ __all__ = [
     "from_bounds",
     "from_origin",
     "parse_crs",
+    "prj_path",
+    "prj_text",
     "read_world_file",
     "world_file_path",
     "world_file_text",
@@ -296,6 +299,25 @@ def world_file_path(raster_path):
         w = "W" if ext.isupper() else "w"
         return p.with_suffix(f".{ext[0]}{ext[-1]}{w}")
     return p.with_suffix(".wld")
+
+
+def prj_path(raster_path):
+    """Sidecar CRS file beside a raster and its world file: ``.prj``.
+
+    >>> prj_path("mosaic.tif").name
+    'mosaic.prj'
+    """
+    return Path(raster_path).with_suffix(".prj")
+
+
+def prj_text(crs):
+    """The CRS as a ``.prj`` holds it: WKT1 in the ESRI dialect, which
+    desktop GIS readers of world files expect (common practice, no source);
+    GDAL and rasterio read it back (:meth:`rasterio.crs.CRS.from_wkt`)."""
+    try:
+        return crs.to_wkt(version=WktVersion.WKT1_ESRI) + "\n"
+    except CRSError:  # a CRS the ESRI dialect cannot express: GDAL's own WKT
+        return crs.to_wkt() + "\n"
 
 
 def world_file_text(transform):

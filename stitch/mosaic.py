@@ -1,4 +1,4 @@
-"""Write the mosaic: a tiled, compressed GeoTIFF and its world file.
+"""Write the mosaic: a tiled, compressed GeoTIFF, its world file and ``.prj``.
 
 The mosaic is written tile by tile into windows of the output, each tile read
 from disk and turned as the placement says, so memory holds one tile at a
@@ -22,8 +22,8 @@ from rasterio.windows import Window
 
 from . import __version__
 from .errors import OutputError
-from .files import atomic_path, write_text_atomic
-from .georef import world_file_path, world_file_text
+from .files import atomic_path, retire, write_text_atomic
+from .georef import prj_path, prj_text, world_file_path, world_file_text
 from .orientation import orient
 
 __all__ = ["CAUTION", "choose_nodata", "hole_marking", "mosaic_profile", "mosaic_size", "write_mosaic"]
@@ -120,7 +120,13 @@ def mosaic_profile(tileset, placement, georef, nodata):
 
 
 def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews=True, cog=False, progress=None):
-    """Write the mosaic GeoTIFF and its world file.
+    """Write the mosaic GeoTIFF and its sidecars.
+
+    Beside a georeferenced mosaic go its world file (``.tfw``) and, when the
+    CRS is known, a ``.prj`` holding it, for readers of world files. A mosaic
+    in pixel space gets neither: it has no map coordinates to tell, and an
+    old world file or ``.prj`` of the same name (replaced with
+    ``overwrite``) is removed rather than left describing it.
 
     Parameters
     ----------
@@ -128,7 +134,7 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     placement : stitch.layout.Placement
     georef : stitch.georef.Georeference
     path : path-like
-        Output GeoTIFF; the world file goes beside it (``.tfw``).
+        Output GeoTIFF; the sidecars go beside it.
     overwrite : bool, optional
         Replace existing outputs.
     overviews : bool, optional
@@ -141,7 +147,7 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
     Returns
     -------
     dict
-        ``{"mosaic": Path, "world_file": Path}``.
+        ``{"mosaic": Path}``, with ``"world_file"`` and ``"prj"`` when written.
     """
     path = Path(path)
     wld = world_file_path(path)
@@ -171,9 +177,18 @@ def write_mosaic(tileset, placement, georef, path, *, overwrite=False, overviews
         finally:
             if cog:
                 tmp.unlink(missing_ok=True)
-    write_text_atomic(wld, world_file_text(georef.transform), overwrite=overwrite)
-    log.info("wrote %s (%d x %d px) and %s", path, profile["width"], profile["height"], wld.name)
-    return {"mosaic": path, "world_file": wld}
+    outputs = {"mosaic": path}
+    if not georef.is_pixel_space:
+        outputs["world_file"] = write_text_atomic(wld, world_file_text(georef.transform), overwrite=overwrite)
+    else:
+        retire(wld, overwrite=overwrite)
+    if georef.crs is not None:
+        outputs["prj"] = write_text_atomic(prj_path(path), prj_text(georef.crs), overwrite=overwrite)
+    else:
+        retire(prj_path(path), overwrite=overwrite)
+    log.info("wrote %s (%d x %d px)%s", path, profile["width"], profile["height"],
+             "".join(f", {p.name}" for k, p in outputs.items() if k != "mosaic"))
+    return outputs
 
 
 def _write_pixels(tmp, profile, tileset, placement, georef, nodata, has_holes, masked, progress):

@@ -27,6 +27,7 @@ from .georef import (
     from_bounds,
     from_origin,
     parse_crs,
+    prj_path,
     world_file_path,
 )
 from .layout import Placement, allowed_orientations, normalize_frame
@@ -404,7 +405,8 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     tiles_dir : path-like
         Folder of GeoTIFF, PNG or JPEG tiles of one size.
     output : path-like
-        Mosaic GeoTIFF to write; a world file is written beside it.
+        Mosaic GeoTIFF to write; a world file and .prj are written beside it (see
+        :func:`stitch.mosaic.write_mosaic`).
     options : SolveOptions, optional
     report_dir : path-like, optional
         Report folder; default ``<output stem>_report`` beside the mosaic.
@@ -458,9 +460,9 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
             f"output {str(output)!r} is inside the tile folder and could pass for a tile; write it elsewhere "
             "or put 'mosaic' in its name"
         )
-    planned = [output, world_file_path(output), *report_paths(report_dir).values()]
+    planned = [output, world_file_path(output), prj_path(output), *report_paths(report_dir).values()]
     _refuse_inputs(planned, tiles_dir, options.recursive)
-    check_outputs([output, world_file_path(output)], overwrite=overwrite)
+    check_outputs([output, world_file_path(output), prj_path(output)], overwrite=overwrite)
     check_report(report_dir, overwrite=overwrite)
     check_before_reading(tiles_dir, options)
     # The run owns its output until it ends: a second run on it refuses now

@@ -39,7 +39,7 @@ from rasterio.windows import Window
 
 from .errors import OptionError, RasterReadError
 from .files import atomic_path, check_outputs, write_text_atomic
-from .georef import world_file_path, world_file_text
+from .georef import prj_path, prj_text, world_file_path, world_file_text
 from .layout import Placement, seam_pairs, write_placement_csv
 from .orientation import TURN_MODES, unorient
 
@@ -108,7 +108,7 @@ def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
     if driver != "GTiff" and transform is not None:
         write_text_atomic(world_file_path(path), world_file_text(transform), overwrite=overwrite)
         if crs is not None:
-            write_text_atomic(path.with_suffix(".prj"), crs.to_wkt() + "\n", overwrite=overwrite)
+            write_text_atomic(prj_path(path), prj_text(crs), overwrite=overwrite)
 
 
 def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False, keep_georef=0,

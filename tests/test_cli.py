@@ -181,3 +181,49 @@ def test_a_good_run_passes_fail_if_doubtful(tmp_path, tiles_dir):
     r = run("solve", tiles_dir, "-o", tmp_path / "m.tif", "--fail-if-doubtful")
     assert r.exit_code == 0, r.output
     assert "verdict: good:" in r.output
+
+
+def _help(*command):
+    r = runner.invoke(app, [*command, "--help"], terminal_width=100)
+    assert r.exit_code == 0, r.output
+    return r.output
+
+
+@pytest.mark.parametrize("command", ["solve", "cut", "score", "inspect", "plugins"])
+def test_help_shows_what_to_type(command):
+    """Placeholders a user can type: no type names ("<bool>" on a flag that
+    takes no value, "<list[str]>", "<float,float,float,float>..."), no raw
+    parameter names in braces, no count default on -v."""
+    text = _help(command)
+    options = text.split("Options:", 1)[1]
+    for bad in ("<bool>", "<int>", "<str>", "<float", "list[", "{", "}"):
+        assert bad not in options, (bad, text)
+    assert "{" not in text.splitlines()[0]
+    verbose = [ln for ln in options.splitlines() if "--verbose" in ln]
+    assert all("[default" not in ln for ln in verbose)
+
+
+def test_help_placeholders_say_the_format():
+    text = _help("solve")
+    assert text.splitlines()[0].endswith("solve [OPTIONS] TILES_DIR")
+    for shown in ("--bounds W S E N", "--origin X Y", "--pin NAME=ROW,COL", "--grid ROWSxCOLS", "--rotations 0|180|90",
+                  "--mirrored  ", "-o, --output OUT.tif"):
+        assert shown in text, shown
+
+
+def test_readme_option_table_matches_solve_help():
+    """Every option of ``solve --help`` is in the README's option table and
+    every option the table names exists."""
+    import re
+    from pathlib import Path
+
+    import typer
+
+    readme = (Path(__file__).parent.parent / "README.md").read_text()
+    table = readme.split("| option | meaning |", 1)[1].split("\n\n", 1)[0]
+    documented = set(re.findall(r"(?<![\w-])(--[a-z][a-z-]*|-[a-z])\b", "\n".join(
+        ln.split("|")[1] for ln in table.splitlines() if ln.startswith("| `"))))
+    command = typer.main.get_command(app).commands["solve"]
+    offered = {o for p in command.params if p.param_type_name == "option" for o in p.opts if o not in ("-h", "--help")}
+    assert documented - offered == set(), "README names options solve does not have"
+    assert offered - documented == set(), "solve has options the README table leaves out"

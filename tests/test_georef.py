@@ -19,7 +19,7 @@ from rasterio.transform import from_bounds as rio_from_bounds
 from rasterio.transform import from_origin as rio_from_origin
 
 from conftest import skimage_image, write_raster
-from stitch.errors import GeoreferenceError, OptionError
+from stitch.errors import GeoreferenceError, NotGeoreferencedWarning, OptionError, OutputExistsError
 from stitch.georef import GeorefSpec, read_world_file, world_file_path, world_file_text
 from stitch.pipeline import SolveOptions, solve
 
@@ -113,6 +113,51 @@ def test_the_mosaics_world_file_is_read_by_gdal_as_the_mosaics_transform(tmp_pat
     with rasterio.open(result.outputs["mosaic"]) as tif, rasterio.open(tmp_path / "copy.png") as png:
         assert tuple(png.transform) == pytest.approx(tuple(tif.transform), abs=1e-9)
         assert tif.transform.e == -0.25 and tif.transform.a == 0.5  # non-square pixels as given
+
+
+def test_the_mosaics_prj_holds_its_crs(tmp_path, tiles_dir):
+    """The .prj beside the world file holds the GeoTIFF's CRS as ESRI WKT1,
+    the dialect desktop readers of world files expect (common practice, no
+    source); GDAL (rasterio's CRS.from_wkt) reads it back as the same CRS."""
+    from rasterio.crs import CRS
+
+    result = solve(tiles_dir, tmp_path / "m.tif", options=SolveOptions(georef=GeorefSpec(
+        origin=(431000.0, 5800000.0), pixel_size=(0.5, 0.5), crs="EPSG:32630")))
+    prj = result.outputs["prj"]
+    assert prj == tmp_path / "m.prj"
+    text = prj.read_text()
+    assert text.startswith('PROJCS["WGS_1984_UTM_Zone_30N"')  # the ESRI dialect's names
+    with rasterio.open(result.outputs["mosaic"]) as tif:
+        assert CRS.from_wkt(text) == tif.crs
+        assert CRS.from_wkt(text).to_epsg() == 32630
+
+
+def test_a_mosaic_in_pixel_space_gets_no_sidecars(tmp_path, utm_raster):
+    """No map coordinates, no world file or .prj; an old pair of the same
+    name is removed with --overwrite rather than left describing the new
+    mosaic."""
+    from stitch.puzzles import cut_raster
+
+    tiles_dir = tmp_path / "tiles"
+    cut_raster(utm_raster, tiles_dir, 56, shuffle=True, strip_georef=True, seed=5, key_path=tmp_path / "key.csv")
+    out = tmp_path / "m.tif"
+    solve(tiles_dir, out, options=SolveOptions(georef=GeorefSpec(
+        origin=(431000.0, 5800000.0), pixel_size=(0.5, 0.5), crs="EPSG:32630")))
+    assert (tmp_path / "m.tfw").is_file() and (tmp_path / "m.prj").is_file()
+    with pytest.warns(NotGeoreferencedWarning):
+        result = solve(tiles_dir, out, options=SolveOptions(), overwrite=True)
+    assert sorted(k for k in result.outputs if not k.startswith("report")) == ["mosaic"]
+    assert not (tmp_path / "m.tfw").exists() and not (tmp_path / "m.prj").exists()
+    with rasterio.open(out) as tif:
+        assert tif.crs is None and tif.transform.is_identity
+
+
+def test_an_existing_prj_is_not_replaced_without_overwrite(tmp_path, tiles_dir):
+    (tmp_path / "m.prj").write_text("precious")
+    with pytest.raises(OutputExistsError, match="m.prj"):
+        solve(tiles_dir, tmp_path / "m.tif", options=SolveOptions(georef=GeorefSpec(
+            origin=(431000.0, 5800000.0), pixel_size=(0.5, 0.5), crs="EPSG:32630")))
+    assert (tmp_path / "m.prj").read_text() == "precious"
 
 
 def test_world_file_reader_refuses_garbage(tmp_path):
