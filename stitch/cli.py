@@ -320,6 +320,13 @@ def solve(
         typer.echo(_grid_line(p.shape, s.shape_evidence))
     g = result.georeference
     typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
+    f = result.facts
+    if f["bounds"] is not None:
+        typer.echo(f"extent: west {f['bounds'][0]:.10g}, south {f['bounds'][1]:.10g}, east {f['bounds'][2]:.10g}, "
+                   f"north {f['bounds'][3]:.10g} ({f['units']}); pixel {f['pixel_size'][0]:.6g} x "
+                   f"{f['pixel_size'][1]:.6g}; {f['size_px'][0]} x {f['size_px'][1]} px")
+    else:
+        typer.echo(f"extent: {f['size_px'][0]} x {f['size_px'][1]} px, no map coordinates")
     if result.control is not None:
         for i, (m, px) in enumerate(zip(result.control.residuals_map, result.control.residuals_px), start=1):
             typer.echo(f"  control point {i}: residual {m:.4g} map units ({px:.3g} px)")

@@ -38,6 +38,7 @@ __all__ = [
     "from_bounds",
     "from_origin",
     "parse_crs",
+    "map_units",
     "prj_path",
     "prj_text",
     "read_world_file",
@@ -69,6 +70,31 @@ class Georeference:
     @property
     def is_pixel_space(self):
         return self.crs is None and self.transform.is_identity
+
+    def facts(self, width, height):
+        """Where a ``width x height`` px mosaic lies, as plain data: the
+        transform in affine's (and rasterio's) order and in GDAL's
+        geotransform order, the bounds, the pixel size and their unit.
+
+        >>> g = Georeference(Affine(0.5, 0, 431000, 0, -0.5, 5800000), CRS.from_epsg(32630), "given")
+        >>> f = g.facts(320, 256)
+        >>> f["bounds"], f["pixel_size"], f["units"]
+        ([431000.0, 5799872.0, 431160.0, 5800000.0], [0.5, 0.5], 'metres')
+        >>> f["gdal_geotransform"]
+        [431000.0, 0.5, 0.0, 5800000.0, 0.0, -0.5]
+        """
+        t = self.transform
+        west, south, east, north = rasterio.transform.array_bounds(height, width, t)
+        return {
+            "transform": [float(v) for v in tuple(t)[:6]],
+            "transform_order": "affine a, b, c, d, e, f: x = a*col + b*row + c, y = d*col + e*row + f "
+                               "(rasterio's order; pixel corners)",
+            "gdal_geotransform": [float(v) for v in t.to_gdal()],
+            "bounds": None if self.is_pixel_space else [float(west), float(south), float(east), float(north)],
+            "pixel_size": [float(math.hypot(t.a, t.d)), float(math.hypot(t.b, t.e))],
+            "units": "pixels" if self.is_pixel_space else map_units(self.crs),
+            "size_px": [int(width), int(height)],
+        }
 
 
 #: The mosaic in pixel space (no georeferencing found).
@@ -122,6 +148,8 @@ class GeorefSpec:
                 raise OptionError(f"--pixel-size must be positive, got {self.pixel_size}")
         if (self.bounds is not None or self.origin is not None) and self.crs is None:
             raise OptionError("--bounds and --origin need --crs (e.g. --crs EPSG:32633)")
+        if self.crs is not None:
+            _check_units(self, parse_crs(self.crs))
 
     @property
     def is_empty(self):
@@ -146,6 +174,53 @@ def parse_crs(value):
             return CRS.from_user_input(value)
     except CRSError as exc:
         raise OptionError(f"--crs {value!r} is not a CRS GDAL knows ({exc}); give e.g. EPSG:32633") from None
+
+
+def _crs_name(crs):
+    epsg = crs.to_epsg()
+    return f"EPSG:{epsg}" if epsg else "the --crs given"
+
+
+def _plural(unit):
+    """``"metre"`` -> ``"metres"``, ``"US survey foot"`` -> ``"US survey feet"``."""
+    return unit[:-4] + "feet" if unit.endswith("foot") else unit + "s"
+
+
+def map_units(crs):
+    """What coordinates in ``crs`` are counted in, for messages: ``"metres"``,
+    ``"US survey feet"``, ``"degrees"``, or ``"map units"`` when unknown.
+
+    >>> map_units(CRS.from_epsg(32633)), map_units(CRS.from_epsg(4326)), map_units(None)
+    ('metres', 'degrees', 'map units')
+    """
+    if crs is None:
+        return "map units"
+    if crs.is_geographic:
+        return "degrees"
+    return _plural(crs.linear_units) if crs.linear_units and crs.linear_units != "unknown" else "map units"
+
+
+def _check_units(spec, crs):
+    """Refuse coordinates that cannot be in ``crs``'s units: degrees given
+    with a projected CRS (a mosaic under one unit across whose numbers all
+    lie within longitude and latitude ranges), or numbers beyond longitude
+    and latitude ranges with a geographic one (our rule, no source)."""
+    if spec.bounds is not None:
+        w, s, e, n = spec.bounds
+        xs, ys, flag, span = (w, e), (s, n), "--bounds", max(e - w, n - s)
+    elif spec.origin is not None:
+        xs, ys, flag, span = (spec.origin[0],), (spec.origin[1],), "--origin", max(spec.pixel_size) * 100
+    else:
+        return
+    numbers = " ".join(f"{v:.12g}" for v in (spec.bounds or spec.origin))
+    looks_lonlat = all(abs(x) <= 180 for x in xs) and all(abs(y) <= 90 for y in ys)
+    if crs.is_projected and looks_lonlat and span < 1:
+        unit = map_units(crs)
+        raise OptionError(f"{flag} {numbers} look like longitude and latitude, but {_crs_name(crs)} is in {unit}: "
+                          f"give {flag} in {unit}, or --crs EPSG:4326 if they are degrees")
+    if crs.is_geographic and not (all(abs(x) <= 360 for x in xs) and all(abs(y) <= 90 for y in ys)):
+        raise OptionError(f"{flag} {numbers} are not longitude and latitude, but {_crs_name(crs)} is in degrees: "
+                          f"give the --crs the numbers are in (e.g. a UTM zone's EPSG code)")
 
 
 def from_bounds(bounds, width, height, crs):

@@ -11,6 +11,7 @@ import logging
 import time
 import warnings
 from dataclasses import asdict, dataclass, field, replace
+from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
@@ -26,6 +27,7 @@ from .georef import (
     from_anchors,
     from_bounds,
     from_origin,
+    map_units,
     parse_crs,
     prj_path,
     world_file_path,
@@ -144,6 +146,8 @@ class SolveResult:
     review : ndarray of str or None
         Per tile: ``""`` (confident), ``"interchangeable"`` (flagged, but other
         flagged tiles look just like it) or ``"doubtful"``.
+    started : str
+        When the run began (ISO 8601, UTC).
     """
 
     placement: Placement
@@ -160,6 +164,12 @@ class SolveResult:
     measure: str = ""
     verdict: object = None
     review: np.ndarray | None = None
+    started: str = ""
+
+    @property
+    def facts(self):
+        """Where the mosaic lies: :meth:`stitch.georef.Georeference.facts`."""
+        return self.georeference.facts(*mosaic_size(self.tileset, self.placement))
 
     @property
     def flagged(self):
@@ -373,10 +383,45 @@ def _edge_evidence(shape, tileset):
             "partial_tiles": int(tileset.partial.sum())}
 
 
+def check_crs_alone(spec, tileset):
+    """A ``--crs`` with no bounds, origin or control points can only name the
+    CRS of anchor tiles that lack one (a world file without a ``.prj``).
+    Refuse it otherwise, before the search: alone it places nothing, and
+    beside anchors of another CRS it contradicts them."""
+    if spec.crs is None or not spec.is_empty:
+        return
+    crs = parse_crs(spec.crs)
+    anchors = [(name, g) for name, g in zip(tileset.names, tileset.georefs) if g is not None]
+    if not anchors:
+        raise OptionError(f"--crs {spec.crs} alone does not put the mosaic on the map: add --bounds, --origin or "
+                          "--gcps, or keep one tile's GeoTIFF tags or world file")
+    other = [(name, g.crs) for name, g in anchors if g.crs is not None and g.crs != crs]
+    if other:
+        name, theirs = other[0]
+        raise OptionError(f"--crs {spec.crs} disagrees with anchor tile {name!r} ({theirs.to_string()}); "
+                          "drop --crs, or reproject the tile")
+
+
+def _override_note(given, anchored):
+    """How far georeferencing given on the command line moves the mosaic
+    from where its anchor tiles put it."""
+    what = f"georeferencing from the command line overrides {anchored.source}"
+    if given.crs is not None and anchored.crs is not None and given.crs != anchored.crs:
+        return f"{what}, which are in {anchored.crs.to_string()}, not {given.crs.to_string()}"
+    a, g = anchored.transform, given.transform
+    dx, dy = g.c - a.c, g.f - a.f
+    px = float(np.hypot(*(~a * (g.c, g.f))))
+    return (f"{what}: it moves the mosaic's upper-left corner by {dx:+.6g}, {dy:+.6g} {map_units(given.crs)} ({px:.3g} px of "
+            f"theirs), with pixels of {abs(g.a):.6g} x {abs(g.e):.6g} against their {abs(a.a):.6g} x {abs(a.e):.6g}")
+
+
 def _georeference(options, placement, tileset):
     """Georeference and, for control points, the fit (or None)."""
     spec = options.georef
     anchored = from_anchors(placement, tileset)
+    if anchored is not None and anchored.crs is None and spec.is_empty and spec.crs is not None:
+        # World files without a .prj: --crs names their CRS.
+        return Georeference(anchored.transform, parse_crs(spec.crs), f"{anchored.source} (CRS from --crs)"), None
     if spec.gcps is not None:
         fit = fit_control(read_gcps(spec.gcps), placement, tileset.width, tileset.height,
                           similarity=spec.similarity)
@@ -393,7 +438,7 @@ def _georeference(options, placement, tileset):
     else:
         return anchored, None
     if anchored is not None:
-        log.warning("georeferencing from the command line overrides %s", anchored.source)
+        log.warning("%s", _override_note(g, anchored))
     return g, None
 
 
@@ -475,6 +520,7 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
 def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
     """The body of :func:`solve`, holding the output's lock."""
     timings, notes = {}, []
+    started = datetime.now(timezone.utc).isoformat(timespec="seconds")
     t0 = time.perf_counter()
     tileset = read_tileset(tiles_dir, recursive=options.recursive, exclude=[output], progress=progress,
                            max_tile_pixels=options.max_tile_pixels)
@@ -486,6 +532,7 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
     if tileset.structureless().all() and not (options.grid and options.pins):
         raise TileSetError(f"no tile in {str(tiles_dir)!r} shows ground detail (all are constant or noise-like, "
                            "as open water or haze): no seam can be matched: " + NO_EVIDENCE_ADVICE)
+    check_crs_alone(options.georef, tileset)
     notes.extend(_duplicate_notes(tileset))
     timings["read"] = time.perf_counter() - t0
 
@@ -540,7 +587,7 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
             timings["write"] = time.perf_counter() - t0
             outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
             result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes),
-                                 fit, sides, frozenset(pins.tiles), table.measure, verdict, review)
+                                 fit, sides, frozenset(pins.tiles), table.measure, verdict, review, started)
             write_report(result, report_dir, overwrite=overwrite)
     except BaseException:
         if not report_existed and report_dir.is_dir() and not any(report_dir.iterdir()):

@@ -13,11 +13,14 @@ from __future__ import annotations
 
 import json
 import platform
+import shlex
+import sys
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 
 import numpy as np
 
+from . import __version__
 from .confidence import grid_source
 from .errors import OutputError
 from .files import check_outputs, write_bytes_atomic, write_text_atomic
@@ -87,6 +90,7 @@ def summary_dict(result):
     holes = int(p.shape[0] * p.shape[1] - p.placed.sum())
     return _jsonable({
         "caution": CAUTION,
+        "run": {"started": result.started, "command_line": shlex.join(sys.argv), "stitch": __version__},
         "inputs": {"tiles_dir": str(result.tileset.folder), "tiles": len(result.tileset),
                    "tile_size": [result.tileset.width, result.tileset.height],
                    "bands": result.tileset.count, "dtype": result.tileset.dtype,
@@ -104,7 +108,7 @@ def summary_dict(result):
                    "cost": result.search.cost, "best_cost": list(result.search.best_history),
                    "mean_cost": list(result.search.mean_history)},
         "georeference": {"source": g.source, "crs": g.crs.to_string() if g.crs else None,
-                         "transform": list(g.transform)[:6], "control": _control(result.control)},
+                         **result.facts, "control": _control(result.control)},
         "flagged_tiles": result.flagged,
         "interchangeable_tiles": ([p.names[i] for i in np.flatnonzero(result.review == "interchangeable")]
                                   if result.review is not None else []),

@@ -227,3 +227,27 @@ def test_readme_option_table_matches_solve_help():
     offered = {o for p in command.params if p.param_type_name == "option" for o in p.opts if o not in ("-h", "--help")}
     assert documented - offered == set(), "README names options solve does not have"
     assert offered - documented == set(), "solve has options the README table leaves out"
+
+
+def test_solve_states_extent_pixel_size_and_provenance(tmp_path, tiles_dir):
+    """The end-of-run lines and summary.json say where the mosaic lies: the
+    fixture's 280 x 280 px raster of 0.5 m pixels from 431000, 5800000 (its
+    own tags, kept by one anchor tile) spans 140 m each way; the transform is
+    labelled with its order and given in GDAL's geotransform order too
+    (GDAL's GetGeoTransform convention: c, a, b, f, d, e)."""
+    out = tmp_path / "m.tif"
+    r = run("solve", tiles_dir, "-o", out)
+    assert r.exit_code == 0, r.output
+    assert ("extent: west 431000, south 5799860, east 431140, north 5800000 (metres); pixel 0.5 x 0.5; "
+            "280 x 280 px") in r.output
+    summary = json.loads((tmp_path / "m_report" / "summary.json").read_text())
+    g = summary["georeference"]
+    assert g["transform"] == [0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0]
+    assert g["transform_order"].startswith("affine a, b, c, d, e, f")
+    assert g["gdal_geotransform"] == [431000.0, 0.5, 0.0, 5800000.0, 0.0, -0.5]
+    assert g["bounds"] == [431000.0, 5799860.0, 431140.0, 5800000.0]
+    assert g["pixel_size"] == [0.5, 0.5] and g["units"] == "metres" and g["size_px"] == [280, 280]
+    assert summary["run"]["started"].endswith("+00:00")
+    import shlex
+
+    assert summary["run"]["command_line"] == shlex.join(sys.argv)  # the process's own (here pytest's)

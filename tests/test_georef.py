@@ -336,3 +336,65 @@ def test_an_anchor_one_tile_off_is_named(tmp_path, utm_raster):
     with pytest.warns(UserWarning, match=rf"anchor tile\(s\) {moved} sit where"):
         result = solve(tmp_path / "t", tmp_path / "m.tif")
     assert any(moved in note for note in result.warnings)
+
+
+@pytest.mark.parametrize("spec, message", [
+    pytest.param(dict(bounds=(-4.01, 52.36, -4.0, 52.37), crs="EPSG:32630"),
+                 "--bounds -4.01 52.36 -4 52.37 look like longitude and latitude, but EPSG:32630 is in metres",
+                 id="degrees with a UTM zone"),
+    pytest.param(dict(origin=(-4.01, 52.37), pixel_size=(1e-5, 1e-5), crs="EPSG:32630"),
+                 "--origin -4.01 52.37 look like longitude", id="degree origin with a UTM zone"),
+    pytest.param(dict(bounds=(431000, 5800000, 431160, 5800128), crs="EPSG:4326"),
+                 "are not longitude and latitude, but EPSG:4326 is in degrees", id="metres with WGS 84"),
+    pytest.param(dict(bounds=(-2000, 0, 2000, 100), crs="EPSG:2263"), None, id="feet are not degrees"),
+])
+def test_coordinates_that_cannot_be_in_the_crs_units_are_refused(spec, message):
+    """Units of the CRSs from the EPSG dataset through PROJ: EPSG:32630 (UTM
+    30N) in metres, EPSG:4326 in degrees, EPSG:2263 (NAD83 / New York Long
+    Island) in US survey feet."""
+    if message is None:
+        GeorefSpec(**spec)
+        return
+    with pytest.raises(OptionError, match=message.replace("(", r"\(")):
+        GeorefSpec(**spec)
+
+
+def test_crs_alone_is_refused_before_the_search(tmp_path, utm_raster):
+    from stitch.puzzles import cut_raster
+
+    cut_raster(utm_raster, tmp_path / "t", 56, shuffle=True, strip_georef=True, seed=5, key_path=tmp_path / "k.csv")
+    with pytest.raises(OptionError, match="--crs EPSG:32630 alone does not put the mosaic on the map"):
+        solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(georef=GeorefSpec(crs="EPSG:32630")))
+    assert list(tmp_path.glob("m*")) == []
+
+
+def test_crs_names_the_crs_of_world_files_without_prj(tmp_path, utm_raster):
+    """A PNG anchor whose .prj was lost keeps its .pgw: --crs says what CRS
+    it is in, and the mosaic gets both; a --crs that contradicts a tile's
+    own CRS is refused."""
+    from stitch.puzzles import cut_raster
+
+    cut = cut_raster(utm_raster, tmp_path / "t", 28, shuffle=True, strip_georef=True, keep_georef=1, fmt="png",
+                     seed=4, key_path=tmp_path / "k.csv")
+    (tmp_path / "t" / cut.georeferenced[0]).with_suffix(".prj").unlink()
+    result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(georef=GeorefSpec(crs="EPSG:32630")))
+    assert result.georeference.source.endswith("(CRS from --crs)")
+    with rasterio.open(utm_raster) as src, rasterio.open(result.outputs["mosaic"]) as out:
+        assert out.crs == src.crs
+        assert out.transform.almost_equals(src.transform, precision=1e-9)
+
+    cut_raster(utm_raster, tmp_path / "u", 28, shuffle=True, strip_georef=True, keep_georef=1, seed=4,
+               key_path=tmp_path / "k2.csv")
+    with pytest.raises(OptionError, match="--crs EPSG:32631 disagrees with anchor tile .* \\(EPSG:32630\\)"):
+        solve(tmp_path / "u", tmp_path / "m2.tif", options=SolveOptions(georef=GeorefSpec(crs="EPSG:32631")))
+
+
+def test_the_override_warning_says_how_far_the_anchors_are_moved(tmp_path, tiles_dir, caplog):
+    """The anchor tile (coffee_utm.tif's own tags) puts the mosaic's corner
+    at 431000, 5800000 with 0.5 m pixels; an origin 10 m east and 5 m north
+    moves it by +10, +5 metres: 20 and 10 of its pixels, 22.4 px."""
+    with caplog.at_level("WARNING"):
+        solve(tiles_dir, tmp_path / "m.tif", options=SolveOptions(georef=GeorefSpec(
+            origin=(431010.0, 5800005.0), pixel_size=(0.5, 0.5), crs="EPSG:32630")))
+    assert ("overrides anchor tile tile_0036.tif: it moves the mosaic's upper-left corner by +10, +5 metres "
+            "(22.4 px of theirs), with pixels of 0.5 x 0.5 against their 0.5 x 0.5") in caplog.text
