@@ -137,7 +137,7 @@ def run(name, img, tile, rotate, seed=1, partial=False, collar=True):
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         src = _write(tmp / "src.tif", img, 0 if collar else None)
-        cut = cut_raster(src, tmp / "tiles", tile, shuffle=True, strip_georef=True, rotate=rotate,
+        cut = cut_raster(src, tmp / "tiles", tile, shuffle=True, strip_georef=True, rotations=rotate,
                          skip_empty=collar, partial=partial, seed=seed, key_path=tmp / "key.csv")
         key = cut.key
         t0 = time.perf_counter()

@@ -267,7 +267,8 @@ def solve(
     pixel_size: Annotated[Optional[float], typer.Option(metavar="SIZE", help="Ground size of a pixel in --crs units (with --origin).")] = None,
     pixel_size_y: Annotated[Optional[float], typer.Option(metavar="SIZE", help="Pixel height when it differs from --pixel-size.")] = None,
     gcps: Annotated[Optional[Path], typer.Option(
-        metavar="FILE.csv", help="Ground control CSV tile,col,row,x,y (pixel/line inside the tile; map x, y in --crs).")] = None,
+        metavar="FILE.csv", help="Ground control CSV with columns tile,col,row,x,y in any order (col, row: GDAL's "
+                                 "pixel/line inside the tile; x, y in --crs).")] = None,
     similarity: Annotated[bool, typer.Option("--similarity", help="Fit control points with 4 parameters, not 6.")] = False,
     crs: Annotated[Optional[str], typer.Option(metavar="CRS", help="CRS of --bounds/--origin/--gcps, e.g. EPSG:32633.")] = None,
     pin: Annotated[Optional[list[str]], typer.Option(
@@ -328,8 +329,10 @@ def solve(
     else:
         typer.echo(f"extent: {f['size_px'][0]} x {f['size_px'][1]} px, no map coordinates")
     if result.control is not None:
-        for i, (m, px) in enumerate(zip(result.control.residuals_map, result.control.residuals_px), start=1):
-            typer.echo(f"  control point {i}: residual {m:.4g} map units ({px:.3g} px)")
+        fit, unit = result.control, f['units']
+        for i, ((dx, dy), m, px) in enumerate(zip(fit.residuals_xy, fit.residuals_map, fit.residuals_px)):
+            typer.echo(f"  control point {fit.label(i)}: dX {dx:+.4g}, dY {dy:+.4g}, residual {m:.4g} {unit} "
+                       f"({px:.3g} px)")
     for path in result.outputs.values():
         typer.echo(f"wrote {path}")
     flagged = result.flagged
@@ -351,8 +354,8 @@ def cut(
     shuffle: Annotated[bool, typer.Option("--shuffle", help="Position-free tile names in random order.")] = False,
     strip_georef: Annotated[bool, typer.Option("--strip-georef", help="Drop georeferencing from the tiles.")] = False,
     keep_georef: Annotated[int, typer.Option(metavar="N", help="With --strip-georef: this many tiles (random, upright) keep it.")] = 0,
-    rotate: Annotated[int, typer.Option(metavar="0|180|90", help="Store tiles turned at random: 0, 180 (half turns) or 90 (quarter turns).")] = 0,
-    mirror: Annotated[bool, typer.Option("--mirror", help="Store tiles mirrored at random.")] = False,
+    rotations: Annotated[int, typer.Option(metavar="0|180|90", help="Store tiles turned at random: 0, 180 (half turns) or 90 (quarter turns).")] = 0,
+    mirrored: Annotated[bool, typer.Option("--mirrored", help="Store tiles mirrored left-right at random.")] = False,
     tile_format: Annotated[str, typer.Option("--format", metavar="tif|png", help="Tile format.")] = "tif",
     key: Annotated[Optional[Path], typer.Option(metavar="FILE.csv", help="Answer key CSV (default: DIR/answer_key.csv).")] = None,
     skip_empty: Annotated[bool, typer.Option("--skip-empty", help="Do not write tiles that hold only nodata, as tilers skip them.")] = False,
@@ -366,10 +369,10 @@ def cut(
     from .puzzles import cut_raster, parse_tile_size
 
     _setup_logging(verbose, quiet)
-    _check_choice(rotate, sorted(TURN_MODES), "--rotate")
+    _check_choice(rotations, sorted(TURN_MODES), "--rotations")
     with _errors(verbose, quiet):
         result = cut_raster(raster, output, parse_tile_size(tile_size), shuffle=shuffle, strip_georef=strip_georef,
-                            keep_georef=keep_georef, rotate=rotate, mirror=mirror, fmt=tile_format, key_path=key,
+                            keep_georef=keep_georef, rotations=rotations, mirrored=mirrored, fmt=tile_format, key_path=key,
                             seed=seed, overwrite=overwrite, skip_empty=skip_empty, partial=partial)
     if not quiet:
         k = result.key
@@ -379,6 +382,10 @@ def cut(
         if result.georeferenced and strip_georef:
             typer.echo(f"kept georeferencing on {', '.join(result.georeferenced)}")
         typer.echo(f"wrote answer key {result.key_path}")
+        cols, rows = result.dropped
+        if cols or rows:
+            typer.echo(f"left out the raster's last {cols} column(s) and {rows} row(s), which fill no whole tile; "
+                       "--partial keeps them as narrower and shorter edge tiles")
 
 
 @app.command(cls=_Command, short_help="Compare a placement with an answer key.")

@@ -1,9 +1,12 @@
 """Ground control: fit the mosaic's transform to surveyed points.
 
-A ground control file is a CSV with the header ``tile,col,row,x,y``: a
-position inside a named tile in GDAL's pixel/line convention ((0, 0) is the
-upper-left corner of the tile's upper-left pixel, (0.5, 0.5) its centre) and
-its map coordinate, in the CRS given with ``--crs``.
+A ground control file is a CSV with the named columns ``tile``, ``col``,
+``row``, ``x`` and ``y``, in any order (``pixel`` and ``line``, GDAL's
+names, may stand for ``col`` and ``row``): a position inside a named tile in
+GDAL's pixel/line convention ((0, 0) is the upper-left corner of the tile's
+upper-left pixel, (0.5, 0.5) its centre; ``col``/``pixel`` counts to the
+right, ``row``/``line`` down) and its map coordinate, in the CRS given with
+``--crs``.
 
 Two fits, by least squares:
 
@@ -13,8 +16,9 @@ Two fits, by least squares:
   one scale, one rotation and a shift; used with ``--similarity`` or when only
   two points are given.
 
-Each point's residual is reported in map units and pixels, with the RMSE;
-points off by more than three times the RMSE of the other points are flagged.
+Each point's residual (given minus fitted, in x and y and as a distance) is
+reported in the CRS's units and in pixels, with the RMSE; points off by more
+than three times the RMSE of the other points are flagged.
 """
 
 from __future__ import annotations
@@ -34,6 +38,9 @@ from .orientation import orient_point
 __all__ = ["ControlPoint", "GcpFit", "fit_affine", "fit_similarity", "mosaic_point", "read_gcps", "fit_control"]
 
 CSV_COLUMNS = ("tile", "col", "row", "x", "y")
+
+#: GDAL's names for a position inside a raster, accepted for ``col`` and ``row``.
+ALIASES = {"pixel": "col", "line": "row"}
 
 
 @dataclass(frozen=True)
@@ -64,6 +71,10 @@ class GcpFit:
     rmse_map, rmse_px : float
     outliers : tuple of int
         Points whose residual exceeds three times the RMSE of the other points.
+    residuals_xy : ndarray, shape (n, 2)
+        Given minus fitted map coordinate, x and y (dX, dY), map units.
+    points : tuple of ControlPoint
+        The points, in the order of the residuals.
     """
 
     transform: Affine
@@ -73,6 +84,13 @@ class GcpFit:
     rmse_map: float
     rmse_px: float
     outliers: tuple
+    residuals_xy: np.ndarray | None = None
+    points: tuple = ()
+
+    def label(self, i):
+        """How point ``i`` is named in messages: its number and tile."""
+        p = self.points[i] if i < len(self.points) else None
+        return f"#{i + 1}" + (f" ({p.tile} at col {p.col:g}, row {p.row:g})" if p is not None else "")
 
 
 #: Largest coordinate a control file may hold: beyond any CRS's extent in
@@ -101,16 +119,19 @@ def read_gcps(path):
     except UnicodeDecodeError:
         raise GeoreferenceError(f"ground control file {str(path)!r} is not UTF-8 text") from None
     reader = csv.DictReader(io.StringIO(text))
-    header = [h.strip() for h in (reader.fieldnames or [])]
-    missing = [c for c in CSV_COLUMNS if c not in header]
-    if missing:
+    header = [h.strip().lower() for h in (reader.fieldnames or [])]
+    named = [ALIASES.get(h, h) for h in header]
+    missing = [c for c in CSV_COLUMNS if c not in named]
+    twice = sorted({c for c in named if c in CSV_COLUMNS and named.count(c) > 1})
+    if missing or twice:
+        what = f"lacks column(s) {', '.join(missing)}" if missing else f"names {', '.join(twice)} twice"
         raise GeoreferenceError(
-            f"ground control file {path.name!r} lacks column(s) {', '.join(missing)}; "
-            f"expected header {','.join(CSV_COLUMNS)}"
+            f"ground control file {path.name!r} {what}; expected the columns {','.join(CSV_COLUMNS)} in any "
+            "order (pixel and line may stand for col and row)"
         )
     points = []
     for lineno, row in enumerate(reader, start=2):
-        row = {(k or "").strip(): v for k, v in row.items()}
+        row = {ALIASES.get(h, h): row[k] for k, h in zip(reader.fieldnames, header)}
         try:
             values = [float(row[c]) for c in CSV_COLUMNS[1:]]
         except (TypeError, ValueError):
@@ -220,7 +241,8 @@ def fit_control(points, placement, width, height, *, similarity=False):
         transform = Affine(transform.a, 0.0, transform.c, 0.0, transform.e, transform.f)
     _check_fit(transform, src, dst, width, height)
     fitted = np.array([transform @ tuple(s) for s in src])
-    res_map = np.hypot(*(fitted - dst).T)
+    res_xy = dst - fitted
+    res_map = np.hypot(*res_xy.T)
     px = math.sqrt(abs(transform.a * transform.e - transform.b * transform.d))
     res_px = res_map / px if px > 0 else res_map
     rmse_map = float(np.sqrt(np.mean(res_map**2)))
@@ -242,7 +264,7 @@ def fit_control(points, placement, width, height, *, similarity=False):
             f"the control points contradict each other: RMSE {rmse_px:.3g} px, more than a tile "
             f"({max(width, height)} px); point {worst + 1} ({points[worst].tile}) is {res_px[worst]:.3g} px off the "
             "fit: check for duplicates with other coordinates and points on the wrong tile")
-    return GcpFit(transform, method, res_map, res_px, rmse_map, rmse_px, outliers)
+    return GcpFit(transform, method, res_map, res_px, rmse_map, rmse_px, outliers, res_xy, tuple(points))
 
 
 def _check_fit(transform, src, dst, width, height):

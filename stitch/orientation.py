@@ -31,7 +31,7 @@ __all__ = [
     "unorient",
 ]
 
-#: Turns a tile may need, by the ``--rotations`` / ``--rotate`` value: none,
+#: Turns a tile may need, by the ``--rotations`` value (of ``solve`` and ``cut``): none,
 #: half turns, or any quarter turn (clockwise quarter turns).
 TURN_MODES = {0: (0,), 180: (0, 2), 90: (0, 1, 2, 3)}
 

@@ -402,10 +402,10 @@ def check_crs_alone(spec, tileset):
                           "drop --crs, or reproject the tile")
 
 
-def _override_note(given, anchored):
+def _override_note(given, anchored, by="georeferencing from the command line"):
     """How far georeferencing given on the command line moves the mosaic
     from where its anchor tiles put it."""
-    what = f"georeferencing from the command line overrides {anchored.source}"
+    what = f"{by} overrides {anchored.source}"
     if given.crs is not None and anchored.crs is not None and given.crs != anchored.crs:
         return f"{what}, which are in {anchored.crs.to_string()}, not {given.crs.to_string()}"
     a, g = anchored.transform, given.transform
@@ -425,11 +425,12 @@ def _georeference(options, placement, tileset):
     if spec.gcps is not None:
         fit = fit_control(read_gcps(spec.gcps), placement, tileset.width, tileset.height,
                           similarity=spec.similarity)
-        g = Georeference(fit.transform, parse_crs(spec.crs),
+        crs = parse_crs(spec.crs)
+        g = Georeference(fit.transform, crs,
                          f"{len(fit.residuals_map)} ground control points, {fit.method}, "
-                         f"RMSE {fit.rmse_map:.4g} map units ({fit.rmse_px:.3g} px)")
+                         f"RMSE {fit.rmse_map:.4g} {map_units(crs)} ({fit.rmse_px:.3g} px)")
         if anchored is not None:
-            log.warning("ground control overrides %s", anchored.source)
+            log.warning("%s", _override_note(g, anchored, by="ground control"))
         return g, fit
     if spec.bounds is not None:
         g = from_bounds(spec.bounds, *mosaic_size(tileset, placement), spec.crs)
@@ -547,7 +548,8 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
 
     georef, fit = _georeference(options, placement, tileset)
     if fit is not None and fit.outliers:
-        names = ", ".join(f"#{i + 1} ({fit.residuals_map[i]:.3g} map units)" for i in fit.outliers)
+        unit = map_units(georef.crs)
+        names = ", ".join(f"{fit.label(i)}, {fit.residuals_map[i]:.3g} {unit}" for i in fit.outliers)
         msg = f"control point(s) {names} lie more than 3 x the RMSE of the others off the fit; check them"
         warnings.warn(msg, UserWarning, stacklevel=2)
         notes.append(msg)

@@ -77,6 +77,8 @@ class CutResult:
     folder: Path
     key_path: Path
     georeferenced: tuple[str, ...]
+    dropped: tuple[int, int] = (0, 0)
+    """Columns and rows of the raster's remainder left out (without ``partial``)."""
 
 
 def parse_tile_size(text):
@@ -112,7 +114,7 @@ def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
 
 
 def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False, keep_georef=0,
-               rotate=0, mirror=False, fmt="tif", key_path=None, seed=0, overwrite=False, skip_empty=False,
+               rotations=0, mirrored=False, fmt="tif", key_path=None, seed=0, overwrite=False, skip_empty=False,
                partial=False):
     """Cut a raster into whole tiles and write them with an answer key.
 
@@ -128,9 +130,9 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         Drop georeferencing from the tiles...
     keep_georef : int
         ...except from this many tiles chosen at random (they stay upright).
-    rotate : {0, 180, 90}
+    rotations : {0, 180, 90}
         Store tiles turned at random by half or quarter turns.
-    mirror : bool
+    mirrored : bool
         Store tiles mirrored at random.
     fmt : {"tif", "png"}
     key_path : path-like, optional
@@ -154,10 +156,10 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
     tw, th = tile_size
     if fmt not in _FORMATS:
         raise OptionError(f"--format must be one of {', '.join(_FORMATS)}, not {fmt!r}")
-    if rotate not in TURN_MODES:
-        raise OptionError(f"--rotate must be one of {sorted(TURN_MODES)}, not {rotate!r}")
-    if rotate == 90 and tw != th:
-        raise OptionError("quarter turns need square tiles; use --rotate 180 or a square --tile-size")
+    if rotations not in TURN_MODES:
+        raise OptionError(f"--rotations must be one of {sorted(TURN_MODES)}, not {rotations!r}")
+    if rotations == 90 and tw != th:
+        raise OptionError("quarter turns need square tiles; use --rotations 180 or a square --tile-size")
     driver, ext = _FORMATS[fmt]
     rng = np.random.default_rng(seed)
     out_dir = Path(out_dir)
@@ -172,8 +174,7 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
             raise OptionError(f"--tile-size {tw}x{th} is larger than {str(raster)!r} ({src.width}x{src.height})")
         if partial:
             rows, cols = -(-src.height // th), -(-src.width // tw)
-        elif src.height % th or src.width % tw:
-            log.info("dropping the last %d rows and %d columns that do not fill a tile", src.height % th, src.width % tw)
+        dropped = (0, 0) if partial else (src.width % tw, src.height % th)
         n = rows * cols
         windows = [Window((k % cols) * tw, (k // cols) * th, min(tw, src.width - (k % cols) * tw),
                           min(th, src.height - (k // cols) * th)) for k in range(n)]
@@ -188,9 +189,9 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
             pool = np.flatnonzero(~empty) if skip_empty else n
             keep[rng.choice(pool, size=min(keep_georef, int((~empty).sum())), replace=False)] = True
         keep &= georeferenced
-        turns = np.asarray(TURN_MODES[rotate])
+        turns = np.asarray(TURN_MODES[rotations])
         rot = np.where(keep, 0, rng.choice(turns, size=n))
-        mir = np.where(keep, False, rng.random(n) < 0.5) if mirror else np.zeros(n, bool)
+        mir = np.where(keep, False, rng.random(n) < 0.5) if mirrored else np.zeros(n, bool)
         order = rng.permutation(n) if shuffle else np.arange(n)
         width = max(4, len(str(n - 1)))
         names = [f"tile_{order[k]:0{width}d}{ext}" if shuffle else f"r{k // cols:03d}_c{k % cols:03d}{ext}"
@@ -213,7 +214,7 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
     w = written
     key = Placement(tuple(names[k] for k in w), (rows, cols), w // cols, w % cols, rot[w], mir[w], np.ones(len(w)))
     write_placement_csv(key, key_path, overwrite=overwrite)
-    return CutResult(key, out_dir, key_path, tuple(names[k] for k in w if keep[k]))
+    return CutResult(key, out_dir, key_path, tuple(names[k] for k in w if keep[k]), dropped)
 
 
 def flight_block_mask(shape, *, angle=25.0, cover=0.5):

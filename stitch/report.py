@@ -79,6 +79,10 @@ def _control(fit):
     if fit is None:
         return None
     return {"method": fit.method, "rmse_map": fit.rmse_map, "rmse_px": fit.rmse_px,
+            "points": [{"tile": p.tile, "col": p.col, "row": p.row, "x": p.x, "y": p.y, "dx": float(dx),
+                        "dy": float(dy), "residual_map": float(m), "residual_px": float(px)}
+                       for p, (dx, dy), m, px in zip(fit.points, fit.residuals_xy, fit.residuals_map,
+                                                     fit.residuals_px)],
             "residuals_map": fit.residuals_map.tolist(), "residuals_px": fit.residuals_px.tolist(),
             "outliers": list(fit.outliers)}
 

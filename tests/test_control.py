@@ -159,9 +159,37 @@ def test_control_point_outlier_is_flagged(tmp_path):
     lines[5] = ",".join([name, u, v, str(float(x) + 40.0), y])  # one point 40 m off
     gcps.write_text("\n".join(lines) + "\n")
     opts = SolveOptions(georef=GeorefSpec(gcps=str(gcps), crs="EPSG:32630"))
-    with pytest.warns(UserWarning, match=r"control point\(s\) #5 .* 3 x the RMSE of the others"):
+    centre = cut.key.names[12]
+    with pytest.warns(UserWarning, match=rf"control point\(s\) #5 \({centre} at col 14, row 14\), 35.6 metres lie "
+                                         r"more than 3 x the RMSE of the others"):
         result = solve(tmp_path / "t", tmp_path / "m.tif", options=opts)
     assert result.control.outliers == (4,)
+    # Given minus fitted. The x fit is a plane through nine points on a 3 x 3
+    # grid; the centre point's leverage (its hat-matrix diagonal) there is
+    # 1/9, so it keeps 40 x (1 - 1/9) = 35.56 m of its 40 m error (least
+    # squares, from memory). The y fit is untouched: dY is 0 everywhere.
+    dxy = result.control.residuals_xy
+    assert dxy[4, 0] == pytest.approx(40 * 8 / 9, abs=1e-6)
+    assert np.abs(dxy[:, 1]).max() < 1e-6
+    assert result.control.points[4].tile == centre
+
+
+def test_control_columns_by_name_in_any_order(tmp_path):
+    """GDAL's pixel/line names stand for col/row, in any column order; the
+    fit equals the one from the documented header."""
+    img = skimage_image("coffee")[:, 60:200, 150:290]
+    src = write_raster(tmp_path / "src.tif", img)
+    cut = cut_raster(src, tmp_path / "t", 28, shuffle=True, seed=2, key_path=tmp_path / "k.csv")
+    t = Affine(0.45, 0.12, 431000.0, 0.11, -0.47, 5800000.0)
+    std = _gcp_csv(tmp_path / "gcp.csv", cut.key, t, [(0, (3.5, 4.5)), (4, (20, 2)), (20, (1, 27)), (24, (27, 9))])
+    rows = [ln.split(",") for ln in std.read_text().splitlines()[1:]]
+    gdal = tmp_path / "gdal.csv"
+    gdal.write_text("Line,X,tile,pixel,y\n" + "".join(f"{r},{x},{n},{c},{y}\n" for n, c, r, x, y in rows))
+    a, b = read_gcps(std), read_gcps(gdal)
+    assert a == b
+    (tmp_path / "twice.csv").write_text("tile,col,pixel,row,x,y\na,1,1,1,0,0\n")
+    with pytest.raises(GeoreferenceError, match="names col twice; expected the columns tile,col,row,x,y in any order"):
+        read_gcps(tmp_path / "twice.csv")
 
 
 def test_control_point_on_unknown_tile(tmp_path, tiles_dir):

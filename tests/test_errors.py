@@ -501,7 +501,7 @@ def test_signals_leave_no_partial_output(tmp_path, signum, code, word):
     file left."""
     # 784 tiles of 16 px with quarter turns: a search of well over 6 s.
     src = write_raster(tmp_path / "src.tif", skimage_image("astronaut")[:, :448, :448])
-    cut_raster(src, tmp_path / "t", 16, shuffle=True, rotate=90, seed=1)
+    cut_raster(src, tmp_path / "t", 16, shuffle=True, rotations=90, seed=1)
     out = tmp_path / "out"
     out.mkdir()
     proc = subprocess.Popen([sys.executable, "-m", "stitch", "solve", str(tmp_path / "t"), "-o", str(out / "m.tif"),

@@ -91,7 +91,7 @@ def test_partial_edge_tiles_stored_turned_come_back_whole(tmp_path, name, tile, 
     the frame comes from the partial tiles alone (the remainder right and
     below), and the mosaic is the source raster pixel for pixel."""
     src_path = _example(name)
-    cut = cut_raster(src_path, tmp_path / "t", tile, shuffle=True, strip_georef=True, rotate=turns, seed=5,
+    cut = cut_raster(src_path, tmp_path / "t", tile, shuffle=True, strip_georef=True, rotations=turns, seed=5,
                      key_path=tmp_path / "k.csv", partial=True)
     assert cut.key.rotations.any()
     result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=5, rotations=turns))
@@ -106,7 +106,7 @@ def test_partial_edge_tiles_stored_turned_come_back_whole(tmp_path, name, tile, 
 def test_partial_edge_tiles_stored_turned_but_solved_upright_are_refused_with_a_way_out(tmp_path):
     from stitch.errors import OptionError
 
-    cut_raster(_example("rmnp-rgb.tif"), tmp_path / "t", 64, shuffle=True, strip_georef=True, rotate=90, seed=5,
+    cut_raster(_example("rmnp-rgb.tif"), tmp_path / "t", 64, shuffle=True, strip_georef=True, rotations=90, seed=5,
                key_path=tmp_path / "k.csv", partial=True)
     with pytest.raises(OptionError, match="--rotations 90"):
         solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions())

@@ -22,7 +22,7 @@ TILE = 28
 def _roundtrip(tmp_path, array, *, rotate=0, seed=1, nodata=None):
     src = write_raster(tmp_path / "src.tif", array, transform=from_origin(1000.0, 2000.0, 1.0, 1.0),
                        crs="EPSG:32615", nodata=nodata)
-    cut = cut_raster(src, tmp_path / "tiles", TILE, shuffle=True, strip_georef=True, rotate=rotate, seed=seed,
+    cut = cut_raster(src, tmp_path / "tiles", TILE, shuffle=True, strip_georef=True, rotations=rotate, seed=seed,
                      key_path=tmp_path / "key.csv")
     result = solve(tmp_path / "tiles", tmp_path / "out.tif", options=SolveOptions(rotations=rotate, seed=seed))
     solution = read_placement_csv(result.outputs["report_placement"])
@@ -73,7 +73,7 @@ def test_same_seed_same_outputs(tmp_path, tiles_dir):
 def test_non_square_tiles_with_half_turns(tmp_path):
     """Non-square tiles may only need half turns (a quarter turn would change their shape)."""
     src = write_raster(tmp_path / "src.tif", skimage_image("astronaut")[:, :160, :252])
-    cut = cut_raster(src, tmp_path / "tiles", (36, 20), shuffle=True, rotate=180, seed=4, key_path=tmp_path / "k.csv")
+    cut = cut_raster(src, tmp_path / "tiles", (36, 20), shuffle=True, rotations=180, seed=4, key_path=tmp_path / "k.csv")
     result = solve(tmp_path / "tiles", tmp_path / "out.tif", options=SolveOptions(rotations=180, seed=4))
     scores = score_placement(read_placement_csv(result.outputs["report_placement"]), cut.key)
     assert scores.perfect, scores
@@ -82,7 +82,7 @@ def test_non_square_tiles_with_half_turns(tmp_path):
 @pytest.mark.filterwarnings("ignore::stitch.errors.NotGeoreferencedWarning")
 def test_mirrored_and_turned_tiles(tmp_path):
     src = write_raster(tmp_path / "src.tif", skimage_image("coffee")[:, 100:268, 200:368])
-    cut = cut_raster(src, tmp_path / "tiles", 28, shuffle=True, rotate=90, mirror=True, seed=6,
+    cut = cut_raster(src, tmp_path / "tiles", 28, shuffle=True, rotations=90, mirrored=True, seed=6,
                      key_path=tmp_path / "k.csv")
     assert cut.key.mirrored.any() and cut.key.rotations.any()
     opts = SolveOptions(rotations=90, mirrored=True, seed=6)

@@ -404,7 +404,7 @@ def _collar_folder(tmp_path, tile, angle, cover, rotate=0, keep=1):
     img[:, ~flight_block_mask(img.shape[1:], angle=angle, cover=cover)] = 0
     src = write_raster(tmp_path / "block.tif", img, transform=from_origin(500000.0, 4100000.0, 1.0, 1.0),
                        crs="EPSG:32633", nodata=0)
-    cut = cut_raster(src, tmp_path / "t", tile, shuffle=True, strip_georef=True, keep_georef=keep, rotate=rotate,
+    cut = cut_raster(src, tmp_path / "t", tile, shuffle=True, strip_georef=True, keep_georef=keep, rotations=rotate,
                      skip_empty=True, seed=1, key_path=tmp_path / "k.csv")
     return src, cut
 
