@@ -58,7 +58,7 @@ DOUBTFUL_EXIT = 3
 
 # Options shared by several commands, defined once.
 Verbose = Annotated[int, typer.Option("--verbose", "-v", count=True, show_default=False, help="More detail; -vv for debug logging and tracebacks.")]
-Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="Only errors.")]
+Quiet = Annotated[bool, typer.Option("--quiet", "-q", help="Only errors (and, after a solve, the caution).")]
 Overwrite = Annotated[bool, typer.Option("--overwrite", help="Replace existing outputs.")]
 Seed = Annotated[int, typer.Option("--seed", metavar="N", help="Seed of every random choice; the same seed gives the same result.")]
 
@@ -73,9 +73,20 @@ class Terminated(KeyboardInterrupt):
         self.name = signal.Signals(signum).name
 
 
+class _LowerLevelFormatter(logging.Formatter):
+    """``warning: ...`` like the run's other messages, not ``WARNING: ...``."""
+
+    def format(self, record):
+        record = logging.makeLogRecord(record.__dict__)
+        record.levelname = record.levelname.lower()
+        return super().format(record)
+
+
 def _setup_logging(verbose, quiet):
     level = logging.ERROR if quiet else (logging.WARNING, logging.INFO, logging.DEBUG)[min(verbose, 2)]
-    logging.basicConfig(level=level, format="%(levelname)s: %(message)s", stream=sys.stderr, force=True)
+    logging.basicConfig(level=level, stream=sys.stderr, force=True)
+    for handler in logging.getLogger().handlers:
+        handler.setFormatter(_LowerLevelFormatter("%(levelname)s: %(message)s"))
     logging.getLogger("rasterio").setLevel(max(level, logging.WARNING))
     logging.getLogger("numba").setLevel(logging.WARNING)
 
@@ -290,6 +301,7 @@ def solve(
     from .mosaic import CAUTION
     from .pipeline import SolveOptions
     from .pipeline import solve as run
+    from .preflight import kernels_compiled
     from .search import SearchSettings
 
     _setup_logging(verbose, quiet)
@@ -306,11 +318,14 @@ def solve(
             georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs,
                               gcps=None if gcps is None else str(gcps), similarity=similarity),
         )
+        if not quiet and sys.stderr.isatty() and not kernels_compiled():
+            typer.echo("first run: compiling the search loops (about 15 s, once; later runs reuse them)", err=True)
         with _progress_bars(not quiet and sys.stderr.isatty()) as bars, _deferred_interrupt(bars) as progress:
             result = run(tiles_dir, output, options=options, report_dir=report, overwrite=overwrite,
                          progress=progress)
     exit_code = DOUBTFUL_EXIT if fail_if_doubtful and result.verdict.level == "doubtful" else 0
-    if quiet:
+    if quiet:  # the caution goes with every result, on stderr with the errors
+        typer.echo(f"caution: {CAUTION}", err=True)
         raise typer.Exit(code=exit_code)
     p = result.placement
     s = result.search
@@ -442,16 +457,25 @@ def inspect(
         typer.echo(json.dumps(found.as_dict(), indent=2))
     else:
         if found.tiles:
+            nodata = "no nodata declared" if found.nodata is None else f"nodata {found.nodata:g}"
             typer.echo(f"tiles: {found.tiles} of {found.tile_size[0]}x{found.tile_size[1]} px, {found.bands} band(s), "
-                       f"{found.dtype}, nodata {found.nodata}")
+                       f"{found.dtype}, {nodata}")
             typer.echo(f"blank tiles: {len(found.blank)}" + (f" ({', '.join(found.blank[:5])})" if found.blank else ""))
             typer.echo(f"groups of duplicate tiles: {len(found.duplicates)}")
-            typer.echo(f"georeferenced tiles: {len(found.georeferenced)}"
-                       + ("" if found.anchors_agree is None else
-                          (" (they agree)" if found.anchors_agree else " (they DISAGREE)")))
+            facts = []
+            if found.anchors_agree is not None:
+                facts.append("they agree" if found.anchors_agree else "they DISAGREE")
+            if found.georeferenced:
+                facts.append(found.anchor_crs or "no CRS: give it with --crs")
+                px = found.anchor_pixel_size
+                facts.append((f"pixel {px[0]:.6g} x {px[1]:.6g}" if px[0] != px[1] else f"pixel {px[0]:.6g}")
+                             + f" {found.anchor_units}")
+            typer.echo(f"georeferenced tiles: {len(found.georeferenced)}" + (f" ({'; '.join(facts)})" if facts else ""))
             typer.echo(f"grid shapes that hold them: {', '.join(found.grid_shapes[:12])}")
             turns = {0: "upright", 180: "half turns", 90: "quarter turns"}[rotations] + (", mirrored" if mirrored else "")
-            typer.echo(f"estimated solve: ~{found.estimated_seconds:.0f} s, ~{found.estimated_memory_mb:.0f} MB ({turns})")
+            cold = "" if found.kernels_compiled else " plus ~15 s once, to compile the search loops"
+            typer.echo(f"estimated solve: ~{found.estimated_seconds:.0f} s{cold}, ~{found.estimated_memory_mb:.0f} MB "
+                       f"({turns})")
         if found.inferred_grid is not None:
             typer.echo(f"placed as solve would, in {found.seconds:.0f} s: {_grid_line(found.inferred_grid, found.grid_evidence)}")
             v = found.verdict

@@ -10,17 +10,18 @@ shapes, an estimate of run time and memory, and the problems that would stop
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
+from pathlib import Path
 
 import numpy as np
 
 from .errors import StitchError
-from .georef import anchor_cells
+from .georef import anchor_cells, map_units
 from .layout import allowed_orientations
 from .search import candidate_shapes
 from .seams import auto_tries_prediction, count_blocks, keeps_dense
 from .tiles import read_tileset
 
-__all__ = ["Inspection", "inspect_tiles"]
+__all__ = ["Inspection", "inspect_tiles", "kernels_compiled"]
 
 
 @dataclass(frozen=True)
@@ -40,6 +41,10 @@ class Inspection:
     grid_shapes: tuple = ()
     estimated_seconds: float = 0.0
     estimated_memory_mb: float = 0.0
+    kernels_compiled: bool = True
+    anchor_crs: str | None = None
+    anchor_pixel_size: tuple | None = None
+    anchor_units: str | None = None
     problems: tuple = ()
     notes: tuple = field(default=())
     inferred_grid: tuple | None = None
@@ -58,14 +63,29 @@ class Inspection:
 
 
 def _estimate(n, size, bands, quarter=False):
-    """Rough seconds and MB of ``solve`` (from bench/seams.py and bench/solve.py on 2 cores)."""
+    """Rough seconds and MB of ``solve`` with the search loops compiled (from
+    bench/seams.py and bench/solve.py, and solve runs on cut scikit-image
+    astronaut folders of 64 to 324 tiles, on 2 cores)."""
     blocks = count_blocks(allowed_orientations(90 if quarter else 0, False))
     seam_s = 4.5e-8 * blocks * n * n * (2 * bands * bands + 2 * size * bands + 2) / 188
     if auto_tries_prediction(n, blocks, size, bands):  # the default measure also scores with prediction
         seam_s += 2.5e-8 * blocks * n * n * size * bands  # from bench timings of prediction
-    search_s = 15.0 * (n / 432) if n > 50 else 2.0
+    search_s = (16.0 if quarter else 7.0) * (n / 432) if n > 50 else 1.0
     mem = (blocks * n * n * 4 if keeps_dense(n, blocks) else 70 * 2**20) / 2**20 + n * 4 * size * 2 * bands * 4 / 2**20 + 250
-    return seam_s + search_s + 5, mem
+    return seam_s + search_s + 2, mem  # 2 s: starting Python, reading headers, writing
+
+
+def kernels_compiled():
+    """Have the search loops been compiled and cached (numba's cache, beside
+    the sources or in ``NUMBA_CACHE_DIR``)? The first run compiles them,
+    which takes about 15 s on this project's 2-core reference machine."""
+    import os
+
+    from .search import _grow
+
+    here = Path(_grow.__file__).parent / "__pycache__"
+    places = [here] + ([Path(os.environ["NUMBA_CACHE_DIR"])] if os.environ.get("NUMBA_CACHE_DIR") else [])
+    return any(next(place.rglob("_grow.greedy-*.nbi"), None) for place in places if place.is_dir())
 
 
 def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=None, infer=False, seed=0):
@@ -114,6 +134,10 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
     if duplicates:
         notes.append(f"{len(duplicates)} group(s) of tiles with identical edges: they are interchangeable")
     georef = tuple(name for name, g in zip(ts.names, ts.georefs) if g is not None)
+    first = next((g for g in ts.georefs if g is not None), None)
+    anchor_crs = None if first is None or first.crs is None else first.crs.to_string()
+    anchor_pixel = None if first is None else (float(abs(first.transform.a)), float(abs(first.transform.e)))
+    anchor_units = None if first is None else map_units(first.crs)
     agree = None
     if georef:
         try:
@@ -135,6 +159,8 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
         folder=str(folder), tiles=n, tile_size=(ts.width, ts.height), bands=ts.count, dtype=ts.dtype,
         nodata=ts.nodata, blank=blank, duplicates=duplicates, georeferenced=georef, anchors_agree=agree,
         grid_shapes=shapes, estimated_seconds=round(seconds, 1), estimated_memory_mb=round(memory),
+        kernels_compiled=kernels_compiled(), anchor_crs=anchor_crs, anchor_pixel_size=anchor_pixel,
+        anchor_units=anchor_units,
         problems=tuple(problems), notes=tuple(notes), **found,
     )
 

@@ -66,9 +66,11 @@ _WORLD_SUFFIXES = {
     ".jpeg": (".jgw", ".jpegw", ".wld"),
 }
 
-#: Endings of sidecar files that belong to tiles (not reported as skipped).
+#: Endings of sidecar files that belong to tiles (world files, CRS, GDAL's
+#: .aux.xml, overviews and masks): not reported as skipped. Any other file
+#: that is not a raster is named in a note.
 _SIDECARS = {".tfw", ".tifw", ".tiffw", ".pgw", ".pngw", ".jgw", ".jpgw", ".jpegw", ".wld", ".prj", ".xml", ".ovr",
-             ".csv", ".json", ".geojson", ".html", ".txt", ".md", ".py"}
+             ".msk"}
 
 #: A tile's edges are noise-like when, in every band, neighbouring boundary
 #: pixels differ by at least this factor times the spread of the pixels
@@ -313,8 +315,26 @@ def find_tiles(folder, *, recursive=False, exclude=(), quiet=False):
             continue
         found.append(path)
     if skipped and not quiet:
-        log.warning("skipping %d file(s) that are not rasters: %s", len(skipped), ", ".join(sorted(skipped)[:5]))
+        more = f" and {len(skipped) - 5} more" if len(skipped) > 5 else ""
+        log.warning("skipping %d file(s) that are not rasters: %s%s", len(skipped), ", ".join(sorted(skipped)[:5]),
+                    more)
     return sorted(found, key=lambda p: p.relative_to(folder).as_posix())
+
+
+def gdal_reason(exc, path):
+    """GDAL's message for ``exc`` as one clause: without the file name it
+    repeats (the error line names the file already) or its closing full
+    stop.
+
+    >>> gdal_reason(RasterioError("'a/t.tif' not recognized as being in a supported file format."), "a/t.tif")
+    'not recognized as being in a supported file format'
+    """
+    text = str(exc).strip()
+    for name in (f"'{path}'", str(path), f"'{Path(path).name}'", Path(path).name):
+        if text.startswith(name):
+            text = text[len(name):].lstrip(": ")
+            break
+    return text.rstrip(". ") or type(exc).__name__
 
 
 def _open(path):
@@ -324,7 +344,7 @@ def _open(path):
             return rasterio.open(path)
     except RasterioError as exc:
         raise RasterReadError(
-            f"cannot read tile {str(path)!r}: {exc}; remove or replace the file"
+            f"cannot read tile {str(path)!r}: {gdal_reason(exc, path)}; remove or replace the file"
         ) from exc
 
 
@@ -335,7 +355,7 @@ def read_tile(path):
             return src.read()
         except RasterioError as exc:
             raise RasterReadError(
-                f"cannot read pixels of tile {str(path)!r} (truncated or corrupt?): {exc}; "
+                f"cannot read pixels of tile {str(path)!r} (truncated or corrupt?): {gdal_reason(exc, path)}; "
                 "remove or replace the file"
             ) from exc
 
@@ -364,7 +384,7 @@ def read_masked(path, nodata=None, dtype=None):
             masked = src.read(masked=True)
         except RasterioError as exc:
             raise RasterReadError(
-                f"cannot read pixels of tile {path.name!r} (truncated or corrupt?): {exc}; "
+                f"cannot read pixels of tile {path.name!r} (truncated or corrupt?): {gdal_reason(exc, path)}; "
                 "remove or replace the file"
             ) from exc
         declared = src.nodata

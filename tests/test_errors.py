@@ -23,6 +23,7 @@ from typer.testing import CliRunner
 from conftest import checksums, skimage_image, write_raster
 from stitch.cli import app
 from stitch.errors import StitchError
+from stitch.mosaic import CAUTION
 from stitch.puzzles import cut_raster
 
 runner = CliRunner()
@@ -315,6 +316,9 @@ def test_error_matrix(tmp_path, name):
     assert r.exit_code == code, r.output
     line = _last_line(r)
     assert message in line, line
+    # One clause per reason: no full stop before the advice, no raw GDAL line.
+    assert ".;" not in line and ".:" not in line, line
+    assert "ERROR 1" not in r.output and "OGR Error" not in r.output, r.output
     if existing is not None:
         assert output.read_bytes() == existing
     elif was_folder:
@@ -379,11 +383,23 @@ def test_an_upper_case_output_gets_a_world_file_gdal_finds(tmp_path):
 
 
 def test_non_raster_files_are_skipped_with_a_note(tmp_path):
+    """Every file that is neither a tile nor a tile's sidecar is named; world
+    files, .prj and GDAL's .aux.xml beside tiles are not."""
     d = _tiles(tmp_path / "in", n=4)
     (d / "field notes.docx").write_text("x")
+    (d / "notes.txt").write_text("x")
+    (d / "t0.tfw").write_text("1\n0\n0\n-1\n0.5\n-0.5\n")
+    (d / "t0.tif.aux.xml").write_text("<PAMDataset/>")
     r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
     assert r.exit_code == 0, r.output
-    assert "skipping 1 file(s) that are not rasters: field notes.docx" in r.output
+    assert "warning: skipping 2 file(s) that are not rasters: field notes.docx, notes.txt\n" in r.output
+
+
+def test_quiet_keeps_the_caution(tmp_path):
+    d = _tiles(tmp_path / "in", n=4)
+    r = _run(["solve", d, "-o", tmp_path / "m.tif", "-q"], d)
+    assert r.exit_code == 0, r.output
+    assert r.output.strip().splitlines() == [f"caution: {CAUTION}"]
 
 
 def test_two_tiles_solve(tmp_path):

@@ -221,3 +221,20 @@ def test_flagged_tiles_of_uniform_sky_are_told_apart_as_interchangeable(tmp_path
     assert {labels[name] for name in result.flagged} == {"interchangeable"}
     summary = json.loads(result.outputs["report_summary"].read_text())
     assert sorted(summary["interchangeable_tiles"]) == sorted(result.flagged)
+
+
+def test_inspect_says_what_a_user_needs_in_words(tmp_path, tiles_dir, monkeypatch):
+    """No "None" for a missing nodata; anchors with their CRS and pixel size
+    (the fixture's EPSG:32630 raster of 0.5 m pixels); the one-off compile
+    time when the search loops are not cached yet."""
+    import stitch.preflight
+
+    r = runner.invoke(app, ["inspect", str(tiles_dir)])
+    assert r.exit_code == 0, r.output
+    assert "uint8, no nodata declared" in r.output and "None" not in r.output
+    assert "georeferenced tiles: 1 (they agree; EPSG:32630; pixel 0.5 metres)" in r.output
+    monkeypatch.setattr(stitch.preflight, "kernels_compiled", lambda: True)
+    assert "compile" not in runner.invoke(app, ["inspect", str(tiles_dir)]).output
+    monkeypatch.setattr(stitch.preflight, "kernels_compiled", lambda: False)
+    r = runner.invoke(app, ["inspect", str(tiles_dir)])
+    assert "plus ~15 s once, to compile the search loops" in r.output

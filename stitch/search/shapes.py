@@ -346,7 +346,8 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
         scores[s] = {"buddy_pairs": b, "mean_normalized_cost": normalized}
         if collar and s in explained:
             scores[s]["explained_holes"] = round(explained[s], 4)
-        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f, objective %.4g", s[0], s[1], b,
+        log.debug("shape %dx%d: %d best-buddy seams, mean normalised cost %.4f, search objective %.4g (seam "
+                  "costs less the reward of each plausible seam; not the total seam cost)", s[0], s[1], b,
                   normalized, objective)
     ranked = sorted(keys, key=keys.get)
     best = ranked[0]
