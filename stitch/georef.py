@@ -173,7 +173,10 @@ def parse_crs(value):
         with rasterio.Env():  # GDAL's messages go to the log, not the screen
             return CRS.from_user_input(value)
     except CRSError as exc:
-        raise OptionError(f"--crs {value!r} is not a CRS GDAL knows ({exc}); give e.g. EPSG:32633") from None
+        reason = str(exc).split(". ")[0].rstrip(".")  # GDAL's first sentence; PROJ's detail and codes follow
+        reason = reason[:1].lower() + reason[1:]
+        raise OptionError(f"--crs {value!r} is not a CRS GDAL knows ({reason}); give an EPSG code such as "
+                          "EPSG:32633, a WKT or a PROJ string") from None
 
 
 def _crs_name(crs):

@@ -222,6 +222,23 @@ def _(tmp):
     return _tiles(tmp / "in"), ["--bounds", 0, 0, 1, 1, "--crs", "32630"], 1, "write the authority too, as EPSG:32630"
 
 
+@case("CRS that is no CRS")
+def _(tmp):
+    return (_tiles(tmp / "in"), ["--bounds", 0, 0, 1, 1, "--crs", "foo"], 1,
+            "--crs 'foo' is not a CRS GDAL knows (the WKT could not be parsed); give an EPSG code")
+
+
+@case("bounds in degrees with a UTM zone")
+def _(tmp):
+    return (_tiles(tmp / "in"), ["--bounds", -4.01, 52.36, -4.0, 52.37, "--crs", "EPSG:32630"], 1,
+            "look like longitude and latitude, but EPSG:32630 is in metres")
+
+
+@case("a CRS and nothing to place the mosaic with")
+def _(tmp):
+    return _tiles(tmp / "in"), ["--crs", "EPSG:32630"], 1, "--crs EPSG:32630 alone does not put the mosaic on the map"
+
+
 @case("control points at one map position")
 def _(tmp):
     text = "tile,col,row,x,y\nt0.tif,1,1,500,600\nt0.tif,20,20,500,600\n"
