@@ -491,7 +491,7 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     >>> spec = GeorefSpec(bounds=(500000, 4099936, 500064, 4100000), crs="EPSG:32633")
     >>> result = solve(tmp / "tiles", tmp / "mosaic.tif", options=SolveOptions(georef=spec))
     >>> sorted(result.outputs)[:3], result.placement.shape
-    (['mosaic', 'report_convergence', 'report_footprints'], (2, 2))
+    (['mosaic', 'prj', 'report_convergence'], (2, 2))
     >>> with rasterio.open(result.outputs["mosaic"]) as out:
     ...     bool((out.read(1) == coins).all()), out.transform.c, out.transform.f, out.crs.to_epsg()
     (True, 500000.0, 4100000.0, 32633)
