@@ -20,12 +20,19 @@ which adds the libraries without running their editable-install hooks).
     python bench/mutation.py            # prints mutmut's summary and the survivors
     python bench/mutation.py --keep     # keep the scratch copy to inspect mutants
 
-mutmut 3.2 records each test's *teardown* time as its duration, and limits
-each mutant's child process to twice that sum plus one second of CPU
-(RLIMIT_CPU). Any mutant whose tests run a solve then dies of SIGXCPU, and a
-child killed by a signal counts as "survived": most survivors of a plain
-``mutmut run`` here were such kills, not gaps in the tests. This script runs
-mutmut with that limit raised to :data:`CPU_FLOOR_S` seconds.
+mutmut runs each mutant's tests in a child forked from its own process, and
+a child killed by a signal counts as "survived". Two things killed children
+here, so most survivors of a plain ``mutmut run`` were such deaths, not gaps
+in the tests:
+
+* numba's default threading layer on this machine is GNU OpenMP, which
+  terminates a forked child that runs a parallel kernel (the seam scoring
+  of every solve) with SIGTERM; the run uses the ``workqueue`` layer, which
+  survives a fork (``NUMBA_THREADING_LAYER``);
+* mutmut 3.2 records each test's *teardown* time as its duration and limits
+  a child to twice that sum plus one second of CPU (RLIMIT_CPU), so tests
+  that run a solve die of SIGXCPU; the limit is raised to
+  :data:`CPU_FLOOR_S` seconds.
 
     python bench/mutation.py --modules mosaic puzzles   # only these modules
 
@@ -34,6 +41,7 @@ runs every test that reaches its function).
 """
 
 import argparse
+import os
 import shutil
 import subprocess
 import sys
@@ -100,7 +108,8 @@ def main():
     work = args.work or Path(tempfile.mkdtemp(prefix="stitch-mutation-"))
     try:
         copy = _setup(work, mutated)
-        subprocess.run([*mutmut, "run", "--max-children", "2"], cwd=copy)
+        env = dict(os.environ, NUMBA_THREADING_LAYER="workqueue")
+        subprocess.run([*mutmut, "run", "--max-children", "2"], cwd=copy, env=env)
         results = subprocess.run([*mutmut, "results"], cwd=copy, capture_output=True, text=True).stdout
         survivors = [ln.split(":")[0].strip() for ln in results.splitlines() if ln.strip().endswith("survived")]
         untested = [ln.split(":")[0].strip() for ln in results.splitlines() if ln.strip().endswith("no tests")]
