@@ -1,7 +1,7 @@
 """Mutation testing of the georeferencing, control, layout, mosaic and scoring code.
 
-mutmut (a maintained mutation tester, ``pip install mutmut==3.2.0``; a
-benchmark-only tool, not a stitch dependency) changes one operator, constant
+mutmut (a maintained mutation tester, ``pip install mutmut==3.2.0 tbb``;
+benchmark-only tools, not stitch dependencies) changes one operator, constant
 or name at a time in ``stitch/georef.py``, ``stitch/control.py``,
 ``stitch/layout.py``, ``stitch/mosaic.py`` and ``stitch/puzzles.py`` and runs the tests that reach
 the changed function; a mutant no test notices is a place where the suite
@@ -27,8 +27,10 @@ in the tests:
 
 * numba's default threading layer on this machine is GNU OpenMP, which
   terminates a forked child that runs a parallel kernel (the seam scoring
-  of every solve) with SIGTERM; the run uses the ``workqueue`` layer, which
-  survives a fork (``NUMBA_THREADING_LAYER``);
+  of every solve) with SIGTERM. The run uses Intel TBB's layer, which
+  survives a fork and, unlike ``workqueue``, the threads the seam scoring
+  calls kernels from (``pip install tbb`` beside mutmut; its library is put
+  on ``LD_LIBRARY_PATH``);
 * mutmut 3.2 records each test's *teardown* time as its duration and limits
   a child to twice that sum plus one second of CPU (RLIMIT_CPU), so tests
   that run a solve die of SIGXCPU; the limit is raised to
@@ -102,13 +104,15 @@ def main():
                     help="mutate only these modules (default: all of them)")
     args = ap.parse_args()
     if shutil.which("mutmut") is None:
-        sys.exit("mutmut is not installed: pip install mutmut==3.2.0 (see the module notes on the environment)")
+        sys.exit("mutmut is not installed: pip install mutmut==3.2.0 tbb (see the module notes on the environment)")
     mutated = [m for m in MUTATED if args.modules is None or Path(m).stem in args.modules]
     mutmut = [sys.executable, "-c", _MUTMUT]
     work = args.work or Path(tempfile.mkdtemp(prefix="stitch-mutation-"))
     try:
         copy = _setup(work, mutated)
-        env = dict(os.environ, NUMBA_THREADING_LAYER="workqueue")
+        lib = str(Path(sys.prefix) / "lib")
+        env = dict(os.environ, NUMBA_THREADING_LAYER="tbb",
+                   LD_LIBRARY_PATH=os.pathsep.join(filter(None, [lib, os.environ.get("LD_LIBRARY_PATH")])))
         subprocess.run([*mutmut, "run", "--max-children", "2"], cwd=copy, env=env)
         results = subprocess.run([*mutmut, "results"], cwd=copy, capture_output=True, text=True).stdout
         survivors = [ln.split(":")[0].strip() for ln in results.splitlines() if ln.strip().endswith("survived")]

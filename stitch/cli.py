@@ -303,6 +303,7 @@ def solve(
     from .pipeline import solve as run
     from .preflight import kernels_compiled
     from .search import SearchSettings
+    from .tiles import skipped_note
 
     _setup_logging(verbose, quiet)
     _check_choice(rotations, sorted(TURN_MODES), "--rotations")
@@ -350,6 +351,8 @@ def solve(
                        f"({px:.3g} px)")
     for path in result.outputs.values():
         typer.echo(f"wrote {path}")
+    if result.tileset.skipped:
+        typer.echo(f"note: {skipped_note(result.tileset.skipped)}")
     flagged = result.flagged
     if flagged:
         shown = ", ".join(flagged[:8]) + (f" and {len(flagged) - 8} more" if len(flagged) > 8 else "")

@@ -39,7 +39,7 @@ from .report import check_report, report_paths, write_report
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
-from .tiles import MAX_TILE_PIXELS, RASTER_SUFFIXES, find_tiles, is_own_output, read_tileset
+from .tiles import MAX_TILE_PIXELS, RASTER_SUFFIXES, find_tiles, is_own_output, read_tileset, skipped_note
 
 __all__ = ["SolveOptions", "SolveResult", "default_report_dir", "place_tiles", "solve"]
 
@@ -534,6 +534,8 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
         raise TileSetError(f"no tile in {str(tiles_dir)!r} shows ground detail (all are constant or noise-like, "
                            "as open water or haze): no seam can be matched: " + NO_EVIDENCE_ADVICE)
     check_crs_alone(options.georef, tileset)
+    if tileset.skipped:
+        notes.append(skipped_note(tileset.skipped))
     notes.extend(_duplicate_notes(tileset))
     timings["read"] = time.perf_counter() - t0
 

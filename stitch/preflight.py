@@ -19,7 +19,7 @@ from .georef import anchor_cells, map_units
 from .layout import allowed_orientations
 from .search import candidate_shapes
 from .seams import auto_tries_prediction, count_blocks, keeps_dense
-from .tiles import read_tileset
+from .tiles import read_tileset, skipped_note
 
 __all__ = ["Inspection", "inspect_tiles", "kernels_compiled"]
 
@@ -130,6 +130,8 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
                         "no seam carries information")
     elif blank:
         notes.append(f"{len(blank)} blank tile(s) will be placed with no evidence")
+    if ts.skipped:
+        notes.append(skipped_note(ts.skipped))
     duplicates = ts.duplicate_groups()
     if duplicates:
         notes.append(f"{len(duplicates)} group(s) of tiles with identical edges: they are interchangeable")

@@ -200,6 +200,9 @@ class TileSet:
         most one corner tile); None when every tile is ``width x height``.
         Partial tiles' edge strips are cut as if the tile were full size,
         with the missing part nodata (see :func:`partial_sizes`).
+    skipped : tuple of str
+        Files in the folder that are neither rasters nor tiles' sidecars
+        (:func:`find_tiles`), for the run's notes.
     """
 
     folder: Path
@@ -214,6 +217,7 @@ class TileSet:
     blank: np.ndarray
     colorinterp: tuple = ()
     sizes: np.ndarray | None = None
+    skipped: tuple[str, ...] = ()
 
     @property
     def partial(self):
@@ -278,11 +282,26 @@ def _is_own_mosaic(src):
     return "STITCH_CAUTION" in src.tags()
 
 
-def find_tiles(folder, *, recursive=False, exclude=(), quiet=False):
+def skipped_note(skipped):
+    """One line naming the files a folder holds that are neither tiles nor
+    tiles' sidecars, or None.
+
+    >>> skipped_note(("notes.txt", "key.csv"))
+    'skipped 2 file(s) that are not rasters: key.csv, notes.txt'
+    """
+    if not skipped:
+        return None
+    names = sorted(skipped)
+    more = f" and {len(names) - 5} more" if len(names) > 5 else ""
+    return f"skipped {len(names)} file(s) that are not rasters: {', '.join(names[:5])}{more}"
+
+
+def find_tiles(folder, *, recursive=False, exclude=(), quiet=False, skipped=None):
     """Raster files in ``folder`` by their ending, sorted by name.
 
     Hidden files, stitch's own outputs (see :func:`is_own_output`) and files
-    without a raster ending are left out; the last are counted in the log.
+    without a raster ending are left out; the last, unless they are tiles'
+    sidecars, are named in ``skipped``.
 
     Parameters
     ----------
@@ -293,6 +312,8 @@ def find_tiles(folder, *, recursive=False, exclude=(), quiet=False):
         Files never taken as tiles (e.g. the run's own outputs).
     quiet : bool, optional
         Do not log the files skipped.
+    skipped : list, optional
+        Receives the names of the files skipped (not rasters, not sidecars).
 
     Returns
     -------
@@ -303,21 +324,21 @@ def find_tiles(folder, *, recursive=False, exclude=(), quiet=False):
         raise TileSetError(f"tile folder {str(folder)!r} does not exist or is not a folder")
     excluded = {Path(p).resolve() for p in exclude}
     pattern = "**/*" if recursive else "*"
-    found, skipped = [], []
+    found, others = [], []
     for path in folder.glob(pattern):
         if path.name.startswith(".") or not path.is_file() or path.resolve() in excluded:
             continue
         if path.suffix.lower() not in RASTER_SUFFIXES:
             if path.suffix.lower() not in _SIDECARS:
-                skipped.append(path.name)
+                others.append(path.relative_to(folder).as_posix())
             continue
         if path.suffix.lower() == ".png" and is_own_output(path):
             continue
         found.append(path)
-    if skipped and not quiet:
-        more = f" and {len(skipped) - 5} more" if len(skipped) > 5 else ""
-        log.warning("skipping %d file(s) that are not rasters: %s%s", len(skipped), ", ".join(sorted(skipped)[:5]),
-                    more)
+    if others and not quiet:
+        log.info("%s", skipped_note(others))
+    if skipped is not None:
+        skipped.extend(sorted(others))
     return sorted(found, key=lambda p: p.relative_to(folder).as_posix())
 
 
@@ -471,7 +492,8 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         A file with a raster ending that GDAL cannot read.
     """
     folder = Path(folder)
-    paths = find_tiles(folder, recursive=recursive, exclude=exclude)
+    skipped = []
+    paths = find_tiles(folder, recursive=recursive, exclude=exclude, skipped=skipped)
     if not paths:
         raise TileSetError(
             f"no tiles in {str(folder)!r}: expected GeoTIFF, PNG or JPEG files "
@@ -563,6 +585,7 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         blank=blank,
         colorinterp=colorinterp,
         sizes=sizes,
+        skipped=tuple(skipped),
     )
 
 

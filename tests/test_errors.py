@@ -409,7 +409,9 @@ def test_non_raster_files_are_skipped_with_a_note(tmp_path):
     (d / "t0.tif.aux.xml").write_text("<PAMDataset/>")
     r = _run(["solve", d, "-o", tmp_path / "m.tif"], d)
     assert r.exit_code == 0, r.output
-    assert "warning: skipping 2 file(s) that are not rasters: field notes.docx, notes.txt\n" in r.output
+    assert "note: skipped 2 file(s) that are not rasters: field notes.docx, notes.txt\n" in r.output
+    summary = (tmp_path / "m_report" / "summary.json").read_text()
+    assert "skipped 2 file(s) that are not rasters: field notes.docx, notes.txt" in summary
 
 
 def test_quiet_keeps_the_caution(tmp_path):
