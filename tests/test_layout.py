@@ -56,7 +56,10 @@ def test_placement_csv_round_trip(tmp_path):
     f.write_text(text)
     q = read_placement_csv(f)
     assert dict(zip(q.names, q.rows)) == {"a.tif": 0, "b.tif": 0, "c.tif": -1}
+    assert dict(zip(q.names, q.cols)) == {"a.tif": 0, "b.tif": 1, "c.tif": -1}
     assert dict(zip(q.names, q.rotations)) == {"a.tif": 0, "b.tif": 1, "c.tif": 2}
+    assert dict(zip(q.names, q.mirrored)) == {"a.tif": False, "b.tif": True, "c.tif": False}
+    assert q.shape == (1, 2)
 
 
 @pytest.mark.parametrize(
@@ -74,6 +77,17 @@ def test_bad_placement_csv(tmp_path, text, message):
     f.write_text(text)
     with pytest.raises(PlacementFileError, match=message):
         read_placement_csv(f)
+
+
+def test_placement_csv_errors_name_the_file_and_what_is_expected(tmp_path):
+    f = tmp_path / "p.csv"
+    f.write_text("tile,row,col\n")
+    with pytest.raises(PlacementFileError) as err:
+        read_placement_csv(f)
+    assert str(err.value) == (f"placement file {str(f)!r} lacks column(s) rotation, mirrored; "
+                              "expected header tile,row,col,rotation,mirrored,confidence")
+    with pytest.raises(PlacementFileError, match=f"cannot read placement file {str(tmp_path / 'none.csv')!r}"):
+        read_placement_csv(tmp_path / "none.csv")
 
 
 def test_seam_pairs_of_a_3x2_grid_by_hand():

@@ -3,6 +3,7 @@
 import numpy as np
 import pytest
 
+from stitch.errors import OptionError
 from stitch.layout import Placement
 from stitch.puzzles import score_placement
 
@@ -90,3 +91,31 @@ def test_scores_do_not_depend_on_the_order_tiles_are_listed_in():
                        np.zeros(9, bool))
     s = score_placement(listed, key)
     assert (s.direct, s.shifted_direct, s.neighbor, s.perfect, s.adjacencies) == (1.0, 1.0, 1.0, True, 12)
+
+
+def test_a_global_mirror_is_forgiven_only_when_the_frame_allows_it():
+    """The whole 3x3 mirrored left-right (every tile flagged mirrored, by
+    hand: t2 t1 t0 / t5 t4 t3 / t8 t7 t6): the same mosaic seen from behind.
+    "free" forgives it, "fixed" does not, "auto" does because tiles are
+    mirrored; the neighbour comparison never depends on the frame."""
+    mirrored = Placement(KEY.names, (3, 3), KEY.rows, 2 - KEY.cols, KEY.rotations, np.ones(9, bool))
+    assert np.array_equal(mirrored.turned(0, mirror=True).cols, KEY.cols)  # the hand-made mirror is the library's
+    for frame, direct in (("free", 1.0), ("auto", 1.0), ("fixed", 0.0)):
+        s = score_placement(mirrored, KEY, frame=frame)
+        assert s.shifted_direct == direct and s.perfect is (direct == 1.0), frame
+        assert s.neighbor == 1.0
+
+
+def test_a_single_tile_key_and_an_empty_one():
+    """With one tile there are no adjacencies: neighbour comparison is 1 for
+    the right tile and 0 for a wrong orientation (it follows the direct
+    comparison); a key that places no tile is refused."""
+    key = Placement(("a",), (1, 1), [0], [0], [0], [False])
+    s = score_placement(key, key)
+    assert (s.direct, s.neighbor, s.perfect, s.tiles, s.adjacencies) == (1.0, 1.0, True, 1, 0)
+    wrong = Placement(("a",), (1, 1), [0], [0], [2], [False])
+    s = score_placement(wrong, key, frame="fixed")
+    assert (s.direct, s.neighbor, s.perfect) == (0.0, 0.0, False)
+    empty = Placement(("a",), (1, 1), [-1], [-1], [0], [False])
+    with pytest.raises(OptionError, match="the answer key places no tile"):
+        score_placement(key, empty)

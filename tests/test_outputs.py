@@ -117,3 +117,29 @@ def test_leftovers_of_a_killed_run_are_removed_and_named(tmp_path, tiles):
     assert "removed 1 temporary file(s) left by an interrupted run" in r.output
     summary = json.loads((tmp_path / "m_report" / "summary.json").read_text())
     assert summary["grid"] == [8, 8]
+
+
+def test_room_is_checked_against_free_space_and_the_file_size_limit(tmp_path, monkeypatch):
+    """_room_for, without filling a disk: a 10 MiB file needing its own size
+    again (share 1) plus 1 MiB of slack, against what shutil.disk_usage and
+    RLIMIT_FSIZE report (both stubbed)."""
+    import resource
+    import shutil
+    from collections import namedtuple
+
+    from stitch.mosaic import _room_for
+
+    tmp = tmp_path / "m.tif.partial"
+    tmp.write_bytes(b"\0" * (10 * 2**20))
+    usage = namedtuple("usage", "total used free")
+    monkeypatch.setattr(shutil, "disk_usage", lambda p: usage(0, 0, 5 * 2**20))
+    with pytest.raises(OutputError) as err:
+        _room_for(tmp, tmp_path / "m.tif", share=1.0, what="overviews")
+    assert str(err.value) == (f"cannot write mosaic {str(tmp_path / 'm.tif')!r}: overviews need about 11 MB and "
+                              "5 MB are free; free some space or write elsewhere")
+    monkeypatch.setattr(shutil, "disk_usage", lambda p: usage(0, 0, 11 * 2**20))
+    _room_for(tmp, tmp_path / "m.tif", share=1.0, what="overviews")  # exactly enough
+    monkeypatch.setattr(resource, "getrlimit", lambda which: (16 * 2**20, resource.RLIM_INFINITY))
+    with pytest.raises(OutputError, match=r"would pass this process's file-size limit \(16.0 MB, ulimit -f\)"):
+        _room_for(tmp, tmp_path / "m.tif", share=1.0, what="overviews")  # grows the file to 21 MiB
+    _room_for(tmp, tmp_path / "m.tif", share=1.0, what="the COG", new_file=True)  # a new 11 MiB file fits
