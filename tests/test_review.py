@@ -238,3 +238,11 @@ def test_inspect_says_what_a_user_needs_in_words(tmp_path, tiles_dir, monkeypatc
     monkeypatch.setattr(stitch.preflight, "kernels_compiled", lambda: False)
     r = runner.invoke(app, ["inspect", str(tiles_dir)])
     assert "plus ~15 s once, to compile the search loops" in r.output
+
+
+def test_the_page_names_the_measure_that_scored_the_seams(solved):
+    """With the default --seam auto, the page says which measure auto chose,
+    never the bare word "auto"."""
+    text = solved.outputs["report_page"].read_text()
+    assert solved.options.measure == "auto" and solved.measure in ("mgc", "prediction")
+    assert f"{solved.measure} (chosen by auto)" in text
