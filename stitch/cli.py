@@ -129,9 +129,9 @@ def _parse_grid(value):
     try:
         r, c = (int(v) for v in value.lower().split("x"))
     except ValueError:
-        raise typer.BadParameter(f"expected ROWSxCOLS such as 8x10, not {value!r}") from None
+        raise typer.BadParameter(f"expected ROWSxCOLS such as 8x10, not {value!r}", param_hint="--grid") from None
     if r < 1 or c < 1:
-        raise typer.BadParameter(f"rows and columns must be at least 1, not {value!r}")
+        raise typer.BadParameter(f"rows and columns must be at least 1, not {value!r}", param_hint="--grid")
     return r, c
 
 

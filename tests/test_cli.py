@@ -72,16 +72,19 @@ def test_missing_output_folder(tmp_path, tiles_dir):
 
 
 @pytest.mark.parametrize(
-    "args",
+    "args, named",
     [
-        pytest.param(["--grid", "ten"], id="bad grid"),
-        pytest.param(["--rotations", "45"], id="bad rotations"),
-        pytest.param(["--bounds", "1", "2"], id="short bounds"),
+        pytest.param(["--grid", "ten"], "--grid", id="bad grid"),
+        pytest.param(["--rotations", "45"], "--rotations", id="bad rotations"),
+        pytest.param(["--bounds", "1", "2"], "--bounds", id="short bounds"),
+        pytest.param(["--pin", "tile_0001.tif"], "--pin", id="pin without a cell"),
     ],
 )
-def test_usage_errors_exit_2(tmp_path, tiles_dir, args):
+def test_usage_errors_exit_2(tmp_path, tiles_dir, args, named):
+    """Exit 2, with the option named in click's usage error."""
     r = run("solve", tiles_dir, "-o", tmp_path / "m.tif", *args)
     assert r.exit_code == 2, r.output
+    assert named in r.output.strip().splitlines()[-1], r.output
 
 
 def test_missing_output_option_is_usage_error(tiles_dir):
