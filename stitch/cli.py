@@ -297,7 +297,7 @@ def solve(
     quiet: Quiet = False,
 ):
     """Put every tile back in its cell and write a georeferenced mosaic, world file and report."""
-    from .georef import GeorefSpec
+    from .georef import GeorefSpec, describe_extent
     from .mosaic import CAUTION
     from .pipeline import SolveOptions
     from .pipeline import solve as run
@@ -338,12 +338,7 @@ def solve(
     g = result.georeference
     typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
     f = result.facts
-    if f["bounds"] is not None:
-        typer.echo(f"extent: west {f['bounds'][0]:.10g}, south {f['bounds'][1]:.10g}, east {f['bounds'][2]:.10g}, "
-                   f"north {f['bounds'][3]:.10g} ({f['units']}); pixel {f['pixel_size'][0]:.6g} x "
-                   f"{f['pixel_size'][1]:.6g}; {f['size_px'][0]} x {f['size_px'][1]} px")
-    else:
-        typer.echo(f"extent: {f['size_px'][0]} x {f['size_px'][1]} px, no map coordinates")
+    typer.echo(f"extent: {describe_extent(f)}")
     if result.control is not None:
         fit, unit = result.control, f['units']
         for i, ((dx, dy), m, px) in enumerate(zip(fit.residuals_xy, fit.residuals_map, fit.residuals_px)):

@@ -38,6 +38,7 @@ __all__ = [
     "from_bounds",
     "from_origin",
     "parse_crs",
+    "describe_extent",
     "map_units",
     "prj_path",
     "prj_text",
@@ -187,6 +188,22 @@ def _crs_name(crs):
 def _plural(unit):
     """``"metre"`` -> ``"metres"``, ``"US survey foot"`` -> ``"US survey feet"``."""
     return unit[:-4] + "feet" if unit.endswith("foot") else unit + "s"
+
+
+def describe_extent(facts):
+    """One line on where a mosaic lies, from :meth:`Georeference.facts`.
+
+    >>> describe_extent({"bounds": [0.0, 0.0, 10.0, 5.0], "units": "metres", "pixel_size": [0.5, 0.5],
+    ...                  "size_px": [20, 10]})
+    'west 0, south 0, east 10, north 5 (metres); pixel 0.5 x 0.5; 20 x 10 px'
+    """
+    w, h = facts["size_px"]
+    if facts.get("bounds") is None:
+        return f"{w} x {h} px, no map coordinates"
+    west, south, east, north = facts["bounds"]
+    sx, sy = facts["pixel_size"]
+    return (f"west {west:.10g}, south {south:.10g}, east {east:.10g}, north {north:.10g} ({facts['units']}); "
+            f"pixel {sx:.6g} x {sy:.6g}; {w} x {h} px")
 
 
 def map_units(crs):

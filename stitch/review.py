@@ -22,6 +22,7 @@ from shapely.geometry import Polygon, mapping
 from shapely.geometry.polygon import orient as orient_ring
 
 from .files import readable_path
+from .georef import describe_extent
 from .mosaic import mosaic_size
 
 __all__ = ["convergence_png", "footprints", "index_html", "preview_png", "tiles_geojson"]
@@ -268,6 +269,8 @@ def index_html(summary, preview, convergence, flagged_rows):
                   f"{summary['inputs']['dtype']})"),
         ("grid", f"{summary['grid'][0]} x {summary['grid'][1]} ({summary['grid_source']}{inference})"),
         ("georeference", f"{g['source']}" + (f" — {g['crs']}" if g['crs'] else "")),
+        ("extent", describe_extent(g)),
+        ("run", f"started {summary['run']['started']}, stitch {summary['run']['stitch']}"),
         ("search", f"{summary['search']['strategy']}, {summary['search']['generations']} generations, "
                    f"seed {summary['options']['seed']}"),
         ("seam measure", summary["seam_measure"]

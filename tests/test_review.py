@@ -246,3 +246,5 @@ def test_the_page_names_the_measure_that_scored_the_seams(solved):
     text = solved.outputs["report_page"].read_text()
     assert solved.options.measure == "auto" and solved.measure in ("mgc", "prediction")
     assert f"{solved.measure} (chosen by auto)" in text
+    # and where the mosaic lies: the fixture's own extent (280 px of 0.5 m from 431000, 5800000)
+    assert "west 431000, south 5799860, east 431140, north 5800000 (metres); pixel 0.5 x 0.5; 280 x 280 px" in text
