@@ -155,3 +155,32 @@ def test_the_scorer_on_hand_made_turned_and_mirrored_placements():
     s = score_placement(one_off, key)
     # Tile e (row 1, col 1) has three neighbours (b, d, f) among the 7 seams.
     assert s.direct == pytest.approx(5 / 6) and s.neighbor == pytest.approx(4 / 7) and not s.perfect
+
+
+def test_tile_sizes_as_cut_takes_them():
+    from stitch.errors import OptionError
+    from stitch.puzzles import parse_tile_size
+
+    assert parse_tile_size("64") == (64, 64)
+    assert parse_tile_size("64x48") == (64, 48) == parse_tile_size("64X48")  # width x height
+    for bad in ("x", "abc", "64x", "64x48x2", "1", "64x1"):
+        with pytest.raises(OptionError, match="--tile-size must be PX or WIDTHxHEIGHT"):
+            parse_tile_size(bad)
+
+
+def test_flight_block_mask_by_hand():
+    """A 100 x 100 raster, block not turned, half cover: the rectangle's
+    half sides are 0.5 * 100 * sqrt(0.5) * 1.25 = 44.19 px across and
+    0.5 * 100 * sqrt(0.5) * 0.8 = 28.28 px down, about the centre 49.5:
+    columns 6 to 93 (88) and rows 22 to 77 (56), 4,928 pixels. A quarter
+    turn transposes it; any turn keeps it symmetric about the centre."""
+    from stitch.puzzles import flight_block_mask
+
+    m = flight_block_mask((100, 100), angle=0, cover=0.5)
+    rows, cols = np.flatnonzero(m.any(axis=1)), np.flatnonzero(m.any(axis=0))
+    assert (rows[0], rows[-1], cols[0], cols[-1]) == (22, 77, 6, 93)
+    assert m.sum() == 88 * 56
+    np.testing.assert_array_equal(flight_block_mask((100, 100), angle=90, cover=0.5), m.T)
+    t = flight_block_mask((120, 90), angle=25, cover=0.4)
+    np.testing.assert_array_equal(t, t[::-1, ::-1])
+    assert abs(t.mean() - 0.4) < 0.03
