@@ -102,3 +102,34 @@ def test_seam_pairs_of_a_3x2_grid_by_hand():
     expected = {(1, 7, 0), (9, 15, 0), (17, 23, 0),   # 0|1, 2|3, 4|5
                 (2, 8, 0), (6, 12, 0), (10, 16, 0), (14, 20, 0)}  # 0/2, 1/3, 2/4, 3/5
     assert {tuple(int(v) for v in s) for s in seam_pairs(p)} == expected
+
+
+def test_placement_csv_reads_what_a_hand_written_file_leaves_out(tmp_path):
+    """Blank rotation and mirrored mean 0; confidence is read when given and
+    NaN when blank; turns beyond 270 wrap (450 is 90); a file placing no tile
+    has an empty grid."""
+    f = tmp_path / "p.csv"
+    f.write_text("tile,row,col,rotation,mirrored,confidence\na,0,0,,,0.25\nb,0,1,450,1,\n")
+    q = read_placement_csv(f)
+    assert q.rotations.tolist() == [0, 1] and q.mirrored.tolist() == [False, True]
+    assert q.confidence[0] == 0.25 and np.isnan(q.confidence[1])
+    f.write_text("tile,row,col,rotation,mirrored\na,,,0,0\n")
+    assert read_placement_csv(f).shape == (0, 0)
+
+
+@pytest.mark.parametrize("line", ["a,-1,3,0,0", "a,3,-1,0,0", "a,0,0,0,2", "a,0,0,45,0"])
+def test_placement_csv_refuses_a_bad_cell_turn_or_mirror(tmp_path, line):
+    f = tmp_path / "p.csv"
+    f.write_text(f"tile,row,col,rotation,mirrored\n{line}\n")
+    with pytest.raises(PlacementFileError) as err:
+        read_placement_csv(f)
+    assert str(err.value) == ("p.csv line 2: rotation must be 0, 90, 180 or 270, mirrored 0 or 1, "
+                              "row and col non-negative")
+
+
+def test_placement_csv_names_tiles_listed_twice(tmp_path):
+    f = tmp_path / "p.csv"
+    f.write_text("tile,row,col,rotation,mirrored\nb,0,0,0,0\na,0,1,0,0\nb,1,0,0,0\na,1,1,0,0\nc,2,0,0,0\n")
+    with pytest.raises(PlacementFileError) as err:
+        read_placement_csv(f)
+    assert str(err.value) == "p.csv lists tile(s) more than once: a, b"
