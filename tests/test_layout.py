@@ -133,3 +133,60 @@ def test_placement_csv_names_tiles_listed_twice(tmp_path):
     with pytest.raises(PlacementFileError) as err:
         read_placement_csv(f)
     assert str(err.value) == "p.csv lists tile(s) more than once: a, b"
+
+
+def _row(names, cols, rotations, mirrored):
+    n = len(names)
+    return Placement(tuple(names), (1, max(cols) + 1), np.zeros(n, int), np.array(cols), np.array(rotations),
+                     np.array(mirrored, bool))
+
+
+def test_frame_unmirrors_a_mosaic_seen_from_behind():
+    """a b c, stored mirrored and placed right to left: with mirrors allowed
+    (orientation codes 0 and 4: no turns), the frame that leaves every tile
+    as stored in its file is a b c upright."""
+    from stitch.layout import normalize_frame
+
+    behind = _row("abc", [2, 1, 0], [0, 0, 0], [True, True, True])
+    p = normalize_frame(behind, orientations=(0, 4))
+    assert p.cols.tolist() == [0, 1, 2] and not p.mirrored.any() and p.shape == (1, 3)
+    assert normalize_frame(behind, orientations=(0,)).mirrored.all()  # no mirrors allowed: left as it is
+
+
+def test_frame_ties_keep_the_placement_as_found():
+    """Half the tiles upright either way: the frame as found wins (no turn,
+    no mirror), so a result never flips for nothing."""
+    from stitch.layout import normalize_frame
+
+    turned = _row("ab", [0, 1], [0, 2], [False, False])
+    p = normalize_frame(turned, orientations=(0, 2))
+    assert p.cols.tolist() == [0, 1] and p.rotations.tolist() == [0, 2]
+    half = _row("ab", [0, 1], [0, 0], [False, True])
+    p = normalize_frame(half, orientations=(0, 4))
+    assert p.cols.tolist() == [0, 1] and p.mirrored.tolist() == [False, True]
+
+
+def test_frame_puts_partial_tiles_outer_sides_right_and_down():
+    """Both tiles stored half turned; b is a partial edge tile whose file
+    side 3 (left) faced the raster's edge. Turned back (more tiles upright),
+    that side would face left; as found it faces right, where tilers put the
+    remainder, and that outranks the upright count."""
+    from stitch.layout import normalize_frame
+
+    stored = _row("ab", [0, 1], [2, 2], [False, False])
+    outer = np.zeros((2, 4), bool)
+    outer[1, 3] = True
+    p = normalize_frame(stored, orientations=(0, 2), outer=outer)
+    assert p.cols.tolist() == [0, 1] and p.rotations.tolist() == [2, 2]
+    assert normalize_frame(stored, orientations=(0, 2)).rotations.tolist() == [0, 0]  # without the edge evidence
+
+
+def test_frame_fits_the_grid_given_or_says_it_cannot():
+    from stitch.errors import OptionError
+    from stitch.layout import normalize_frame
+
+    p = normalize_frame(_row("ab", [0, 1], [0, 0], [False, False]), orientations=(0, 1, 2, 3), fit=(2, 3))
+    assert p.shape == (2, 3) and p.rotations.tolist() == [0, 0]
+    with pytest.raises(OptionError) as err:
+        normalize_frame(_row("ab", [0, 1], [0, 0], [False, False]), orientations=(0,), fit=(2, 1))
+    assert str(err.value) == "the placement (1x2) does not fit the grid 2x1"
