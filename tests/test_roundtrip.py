@@ -184,3 +184,38 @@ def test_flight_block_mask_by_hand():
     t = flight_block_mask((120, 90), angle=25, cover=0.4)
     np.testing.assert_array_equal(t, t[::-1, ::-1])
     assert abs(t.mean() - 0.4) < 0.03
+
+
+def test_cut_writes_tiles_as_documented_and_never_replaces_without_overwrite(tmp_path):
+    """GeoTIFF tiles are DEFLATE-compressed with horizontal differencing
+    (TIFF Predictor 2; 3, floating point, for float tiles), read with
+    tifffile independently of GDAL; GeoTIFF anchors keep their tags and get
+    no world file; PNG anchors get a world file and .prj and no GDAL
+    .aux.xml; a second cut into the same folder is refused without
+    overwrite and replaces the tiles with it. (Compression 8 is Adobe
+    DEFLATE in the TIFF 6 tag registry, from memory.)"""
+    import tifffile
+
+    from stitch.errors import OutputExistsError
+
+    utm = from_origin(431000.0, 5800000.0, 0.5, 0.5)
+    src = write_raster(tmp_path / "src.tif", skimage_image("coffee")[:, :56, :56], transform=utm, crs="EPSG:32630")
+    cut = cut_raster(src, tmp_path / "t", 28, strip_georef=True, keep_georef=1, seed=1)
+    with tifffile.TiffFile(tmp_path / "t" / "r000_c000.tif") as tif:
+        tags = tif.pages[0].tags
+        assert tags["Compression"].value == 8 and tags["Predictor"].value == 2
+    assert not list((tmp_path / "t").glob("*.tfw"))
+    with rasterio.open(tmp_path / "t" / cut.georeferenced[0]) as anchor:
+        assert anchor.crs.to_epsg() == 32630
+    flt = write_raster(tmp_path / "f.tif", jacksboro_dem()[None, :56, :56].astype("float32"))
+    cut_raster(flt, tmp_path / "f", 28, seed=1)
+    with tifffile.TiffFile(tmp_path / "f" / "r000_c000.tif") as tif:
+        assert tif.pages[0].tags["Predictor"].value == 3
+    png = cut_raster(src, tmp_path / "p", 28, strip_georef=True, keep_georef=1, fmt="png", seed=1)
+    anchor = tmp_path / "p" / png.georeferenced[0]
+    assert anchor.with_suffix(".pgw").is_file() and anchor.with_suffix(".prj").is_file()
+    assert not list((tmp_path / "p").glob("*.aux.xml"))
+    with pytest.raises(OutputExistsError):
+        cut_raster(src, tmp_path / "p", 28, strip_georef=True, keep_georef=1, fmt="png", seed=1)
+    again = cut_raster(src, tmp_path / "p", 28, strip_georef=True, keep_georef=1, fmt="png", seed=1, overwrite=True)
+    assert again.georeferenced == png.georeferenced
