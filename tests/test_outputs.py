@@ -143,3 +143,24 @@ def test_room_is_checked_against_free_space_and_the_file_size_limit(tmp_path, mo
     with pytest.raises(OutputError, match=r"would pass this process's file-size limit \(16.0 MB, ulimit -f\)"):
         _room_for(tmp, tmp_path / "m.tif", share=1.0, what="overviews")  # grows the file to 21 MiB
     _room_for(tmp, tmp_path / "m.tif", share=1.0, what="the COG", new_file=True)  # a new 11 MiB file fits
+
+
+@pytest.mark.parametrize("dtype, tile_nodata, holes, nodata, marked", [
+    ("uint8", None, False, None, "none"),
+    ("uint8", None, True, None, "internal mask band"),
+    ("uint8", 255, True, 255, "nodata 255"),
+    ("int16", -9999, False, -9999, "none"),
+    ("float32", None, True, "nan", "nodata nan"),
+    ("float32", None, False, None, "none"),
+])
+def test_how_holes_are_marked(dtype, tile_nodata, holes, nodata, marked):
+    """The tiles' own nodata when they declare one; NaN for float holes; for
+    integer holes without nodata an internal mask band (no value of the type
+    is set aside); summary.json's holes.marked_by says which."""
+    import math
+
+    from stitch.mosaic import choose_nodata, hole_marking
+
+    got = choose_nodata(dtype, tile_nodata, holes)
+    assert (math.isnan(got) if nodata == "nan" else got == nodata), got
+    assert hole_marking(dtype, tile_nodata, holes) == marked
