@@ -190,3 +190,21 @@ def test_frame_fits_the_grid_given_or_says_it_cannot():
     with pytest.raises(OptionError) as err:
         normalize_frame(_row("ab", [0, 1], [0, 0], [False, False]), orientations=(0,), fit=(2, 1))
     assert str(err.value) == "the placement (1x2) does not fit the grid 2x1"
+
+
+def test_frame_reads_mirrored_partial_tiles_and_defaults_to_no_turn():
+    """As above with the tiles stored mirrored instead of turned: a mirrored
+    tile shows its file side 3 on the right (facing_side(0, True, 1) == 3),
+    so the mosaic as found keeps b's outer side on the right. Without
+    orientations given, nothing is turned."""
+    from stitch.layout import normalize_frame
+    from stitch.orientation import facing_side
+
+    assert int(facing_side(0, True, 1)) == 3
+    stored = _row("ab", [0, 1], [0, 0], [True, True])
+    outer = np.zeros((2, 4), bool)
+    outer[1, 3] = True
+    p = normalize_frame(stored, orientations=tuple(range(8)), outer=outer)
+    assert p.cols.tolist() == [0, 1] and p.mirrored.tolist() == [True, True] and p.rotations.tolist() == [0, 0]
+    q = normalize_frame(_row("ab", [0, 1], [1, 3], [False, False]))
+    assert q.cols.tolist() == [0, 1] and q.rotations.tolist() == [1, 3]
