@@ -143,6 +143,16 @@ def test_room_is_checked_against_free_space_and_the_file_size_limit(tmp_path, mo
     with pytest.raises(OutputError, match=r"would pass this process's file-size limit \(16.0 MB, ulimit -f\)"):
         _room_for(tmp, tmp_path / "m.tif", share=1.0, what="overviews")  # grows the file to 21 MiB
     _room_for(tmp, tmp_path / "m.tif", share=1.0, what="the COG", new_file=True)  # a new 11 MiB file fits
+    monkeypatch.setattr(resource, "getrlimit", lambda which: (11 * 2**20, resource.RLIM_INFINITY))
+    _room_for(tmp, tmp_path / "m.tif", share=1.0, what="the COG", new_file=True)  # exactly at the limit is allowed
+    with pytest.raises(OutputError) as err:
+        _room_for(tmp, tmp_path / "m.tif", share=1.0, what="overviews")
+    assert str(err.value) == (f"cannot write mosaic {str(tmp_path / 'm.tif')!r}: overviews would pass this "
+                              "process's file-size limit (11.0 MB, ulimit -f); raise the limit")
+    monkeypatch.setattr(resource, "getrlimit", lambda which: (resource.RLIM_INFINITY, resource.RLIM_INFINITY))
+    monkeypatch.setattr(shutil, "disk_usage", lambda p: usage(0, 0, 13 * 2**20))
+    with pytest.raises(OutputError, match="need about 15 MB and 13 MB are free"):  # 1.4 x 10 MiB + 1 MiB
+        _room_for(tmp, tmp_path / "m.tif", share=1.4, what="the COG", new_file=True)
 
 
 @pytest.mark.parametrize("dtype, tile_nodata, holes, nodata, marked", [
