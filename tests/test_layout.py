@@ -208,3 +208,11 @@ def test_frame_reads_mirrored_partial_tiles_and_defaults_to_no_turn():
     assert p.cols.tolist() == [0, 1] and p.mirrored.tolist() == [True, True] and p.rotations.tolist() == [0, 0]
     q = normalize_frame(_row("ab", [0, 1], [1, 3], [False, False]))
     assert q.cols.tolist() == [0, 1] and q.rotations.tolist() == [1, 3]
+
+
+def test_placement_csv_names_at_most_five_tiles_listed_twice(tmp_path):
+    f = tmp_path / "p.csv"
+    f.write_text("tile,row,col,rotation,mirrored\n" + "".join(f"{n},,,0,0\n{n},,,0,0\n" for n in "abcdef"))
+    with pytest.raises(PlacementFileError) as err:
+        read_placement_csv(f)
+    assert str(err.value) == "p.csv lists tile(s) more than once: a, b, c, d, e"
