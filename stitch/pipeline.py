@@ -205,7 +205,7 @@ def check_before_reading(tiles_dir, options):
     spec = options.georef
     parse_crs(spec.crs)
     folder = Path(tiles_dir)
-    paths = find_tiles(folder, recursive=options.recursive, quiet=True)
+    paths = find_tiles(folder, recursive=options.recursive)
     names = {p.relative_to(folder).as_posix(): p for p in paths}
     n = len(names)
     if n == 0:

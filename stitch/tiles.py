@@ -48,7 +48,9 @@ __all__ = [
     "read_masked",
     "read_tile",
     "read_tileset",
+    "scan_folder",
     "side_strips",
+    "skipped_note",
 ]
 
 log = logging.getLogger(__name__)
@@ -202,7 +204,7 @@ class TileSet:
         with the missing part nodata (see :func:`partial_sizes`).
     skipped : tuple of str
         Files in the folder that are neither rasters nor tiles' sidecars
-        (:func:`find_tiles`), for the run's notes.
+        (:func:`scan_folder`), for the run's notes.
     """
 
     folder: Path
@@ -296,12 +298,12 @@ def skipped_note(skipped):
     return f"skipped {len(names)} file(s) that are not rasters: {', '.join(names[:5])}{more}"
 
 
-def find_tiles(folder, *, recursive=False, exclude=(), quiet=False, skipped=None):
+def find_tiles(folder, *, recursive=False, exclude=()):
     """Raster files in ``folder`` by their ending, sorted by name.
 
     Hidden files, stitch's own outputs (see :func:`is_own_output`) and files
-    without a raster ending are left out; the last, unless they are tiles'
-    sidecars, are named in ``skipped``.
+    without a raster ending are left out (:func:`scan_folder` also names the
+    last).
 
     Parameters
     ----------
@@ -310,14 +312,21 @@ def find_tiles(folder, *, recursive=False, exclude=(), quiet=False, skipped=None
         Descend into sub-folders.
     exclude : iterable of path-like, optional
         Files never taken as tiles (e.g. the run's own outputs).
-    quiet : bool, optional
-        Do not log the files skipped.
-    skipped : list, optional
-        Receives the names of the files skipped (not rasters, not sidecars).
 
     Returns
     -------
     list of Path
+    """
+    return scan_folder(folder, recursive=recursive, exclude=exclude)[0]
+
+
+def scan_folder(folder, *, recursive=False, exclude=()):
+    """:func:`find_tiles`, and the files it skipped that are neither rasters
+    nor tiles' sidecars (relative POSIX names, sorted), for the run's notes.
+
+    Returns
+    -------
+    (list of Path, tuple of str)
     """
     folder = Path(folder)
     if not folder.is_dir():
@@ -335,11 +344,7 @@ def find_tiles(folder, *, recursive=False, exclude=(), quiet=False, skipped=None
         if path.suffix.lower() == ".png" and is_own_output(path):
             continue
         found.append(path)
-    if others and not quiet:
-        log.info("%s", skipped_note(others))
-    if skipped is not None:
-        skipped.extend(sorted(others))
-    return sorted(found, key=lambda p: p.relative_to(folder).as_posix())
+    return sorted(found, key=lambda p: p.relative_to(folder).as_posix()), tuple(sorted(others))
 
 
 def gdal_reason(exc, path):
@@ -492,8 +497,7 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         A file with a raster ending that GDAL cannot read.
     """
     folder = Path(folder)
-    skipped = []
-    paths = find_tiles(folder, recursive=recursive, exclude=exclude, skipped=skipped)
+    paths, skipped = scan_folder(folder, recursive=recursive, exclude=exclude)
     if not paths:
         raise TileSetError(
             f"no tiles in {str(folder)!r}: expected GeoTIFF, PNG or JPEG files "
@@ -585,7 +589,7 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         blank=blank,
         colorinterp=colorinterp,
         sizes=sizes,
-        skipped=tuple(skipped),
+        skipped=skipped,
     )
 
 
