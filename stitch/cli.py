@@ -301,8 +301,7 @@ def solve(
     from .mosaic import CAUTION
     from .pipeline import SolveOptions
     from .pipeline import solve as run
-    from .preflight import kernels_compiled
-    from .search import SearchSettings
+    from .search import SearchSettings, kernels_compiled
     from .tiles import skipped_note
 
     _setup_logging(verbose, quiet)

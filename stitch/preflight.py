@@ -10,18 +10,17 @@ shapes, an estimate of run time and memory, and the problems that would stop
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
-from pathlib import Path
 
 import numpy as np
 
 from .errors import StitchError
 from .georef import anchor_cells, map_units
 from .layout import allowed_orientations
-from .search import candidate_shapes
+from .search import candidate_shapes, kernels_compiled
 from .seams import auto_tries_prediction, count_blocks, keeps_dense
 from .tiles import read_tileset, skipped_note
 
-__all__ = ["Inspection", "inspect_tiles", "kernels_compiled"]
+__all__ = ["Inspection", "inspect_tiles"]
 
 
 @dataclass(frozen=True)
@@ -73,19 +72,6 @@ def _estimate(n, size, bands, quarter=False):
     search_s = (16.0 if quarter else 7.0) * (n / 432) if n > 50 else 1.0
     mem = (blocks * n * n * 4 if keeps_dense(n, blocks) else 70 * 2**20) / 2**20 + n * 4 * size * 2 * bands * 4 / 2**20 + 250
     return seam_s + search_s + 2, mem  # 2 s: starting Python, reading headers, writing
-
-
-def kernels_compiled():
-    """Have the search loops been compiled and cached (numba's cache, beside
-    the sources or in ``NUMBA_CACHE_DIR``)? The first run compiles them,
-    which takes about 15 s on this project's 2-core reference machine."""
-    import os
-
-    from .search import _grow
-
-    here = Path(_grow.__file__).parent / "__pycache__"
-    places = [here] + ([Path(os.environ["NUMBA_CACHE_DIR"])] if os.environ.get("NUMBA_CACHE_DIR") else [])
-    return any(next(place.rglob("_grow.greedy-*.nbi"), None) for place in places if place.is_dir())
 
 
 def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=None, infer=False, seed=0):

@@ -28,6 +28,9 @@ Every random choice is drawn from one :class:`numpy.random.Generator`.
 
 from __future__ import annotations
 
+import os
+from pathlib import Path
+
 import numpy as np
 
 from ..plugins import Registry
@@ -47,6 +50,7 @@ __all__ = [
     "evolution_search",
     "get_search",
     "greedy_search",
+    "kernels_compiled",
     "search_placement",
 ]
 
@@ -103,3 +107,14 @@ def search_placement(table, *, shape=None, orientations=None, settings=None, rng
     return strategy(table, shape=shape, orientations=table.orientations if orientations is None else orientations,
                     settings=settings, rng=np.random.default_rng(rng), progress=progress, pins=pins or Pins(),
                     holes=holes)
+
+
+def kernels_compiled():
+    """Have the search loops been compiled and cached (numba's cache, beside
+    the sources or in ``NUMBA_CACHE_DIR``)? The first run compiles them,
+    which takes about 15 s on this project's 2-core reference machine."""
+    from . import _grow
+
+    here = Path(_grow.__file__).parent / "__pycache__"
+    places = [here] + ([Path(os.environ["NUMBA_CACHE_DIR"])] if os.environ.get("NUMBA_CACHE_DIR") else [])
+    return any(next(place.rglob("_grow.greedy-*.nbi"), None) for place in places if place.is_dir())
