@@ -40,6 +40,7 @@ __all__ = [
     "parse_crs",
     "describe_extent",
     "map_units",
+    "pixel_size",
     "prj_path",
     "prj_text",
     "read_world_file",
@@ -49,6 +50,19 @@ __all__ = [
 
 #: Largest disagreement between two anchor tiles, in pixels.
 ANCHOR_TOLERANCE_PX = 0.25
+
+
+def pixel_size(transform):
+    """A pixel's width and height on the ground, in map units: the lengths
+    of the transform's column and row steps, so also for rotated grids.
+
+    >>> pixel_size(Affine(0.5, 0, 431000, 0, -0.5, 5800000))
+    (0.5, 0.5)
+    >>> pixel_size(Affine.rotation(30) * Affine.scale(2, -3))
+    (2.0, 3.0)
+    """
+    t = transform
+    return float(math.hypot(t.a, t.d)), float(math.hypot(t.b, t.e))
 
 
 @dataclass(frozen=True)
@@ -92,7 +106,7 @@ class Georeference:
                                "(rasterio's order; pixel corners)",
             "gdal_geotransform": [float(v) for v in t.to_gdal()],
             "bounds": None if self.is_pixel_space else [float(west), float(south), float(east), float(north)],
-            "pixel_size": [float(math.hypot(t.a, t.d)), float(math.hypot(t.b, t.e))],
+            "pixel_size": list(pixel_size(t)),
             "units": "pixels" if self.is_pixel_space else map_units(self.crs),
             "size_px": [int(width), int(height)],
         }

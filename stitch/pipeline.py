@@ -29,6 +29,7 @@ from .georef import (
     from_origin,
     map_units,
     parse_crs,
+    pixel_size,
     prj_path,
     world_file_path,
 )
@@ -411,8 +412,9 @@ def _override_note(given, anchored, by="georeferencing from the command line"):
     a, g = anchored.transform, given.transform
     dx, dy = g.c - a.c, g.f - a.f
     px = float(np.hypot(*(~a * (g.c, g.f))))
-    return (f"{what}: it moves the mosaic's upper-left corner by {dx:+.6g}, {dy:+.6g} {map_units(given.crs)} ({px:.3g} px of "
-            f"theirs), with pixels of {abs(g.a):.6g} x {abs(g.e):.6g} against their {abs(a.a):.6g} x {abs(a.e):.6g}")
+    (gw, gh), (aw, ah) = pixel_size(g), pixel_size(a)
+    return (f"{what}: it moves the mosaic's upper-left corner by {dx:+.6g}, {dy:+.6g} {map_units(given.crs)} "
+            f"({px:.3g} px of theirs), with pixels of {gw:.6g} x {gh:.6g} against their {aw:.6g} x {ah:.6g}")
 
 
 def _georeference(options, placement, tileset):

@@ -14,7 +14,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 
 from .errors import StitchError
-from .georef import anchor_cells, map_units
+from .georef import anchor_cells, map_units, pixel_size
 from .layout import allowed_orientations
 from .search import candidate_shapes, kernels_compiled
 from .seams import auto_tries_prediction, count_blocks, keeps_dense
@@ -124,7 +124,7 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
     georef = tuple(name for name, g in zip(ts.names, ts.georefs) if g is not None)
     first = next((g for g in ts.georefs if g is not None), None)
     anchor_crs = None if first is None or first.crs is None else first.crs.to_string()
-    anchor_pixel = None if first is None else (float(abs(first.transform.a)), float(abs(first.transform.e)))
+    anchor_pixel = None if first is None else pixel_size(first.transform)
     anchor_units = None if first is None else map_units(first.crs)
     agree = None
     if georef:
