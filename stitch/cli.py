@@ -248,7 +248,7 @@ def _grid_line(shape, ev):
         return f"{grid} (given)"
     if ev.get("source") == "partial edge tiles":
         return f"{grid} fixed by the {ev['partial_tiles']} partial edge tiles (last column and row)"
-    runner = (f"runner-up {ev['runner_up'][0]}x{ev['runner_up'][1]}, margin {ev['margin']:.1%}"
+    runner = (f"runner-up {ev['runner_up'][0]}x{ev['runner_up'][1]}, margin {ev['margin']:.1%} on {ev['margin_of']}"
               + (", thin: give --grid if you know it" if ev["thin"] else "")
               if ev["runner_up"] else f"{ev['shapes_tried']} grid(s) tried, none a real alternative")
     seg = ev["trusted_segment"]

@@ -576,7 +576,7 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
     if ev is not None and ev["thin"]:
         r, c = ev["runner_up"]
         msg = (f"the {placement.shape[0]}x{placement.shape[1]} grid was inferred with a thin margin over "
-               f"{r}x{c} ({ev['margin']:.1%} more best-buddy seams); give --grid ROWSxCOLS if you know it")
+               f"{r}x{c} ({ev['margin']:.1%} ahead on {ev['margin_of']}); give --grid ROWSxCOLS if you know it")
         warnings.warn(msg, UserWarning, stacklevel=2)
         notes.append(msg)
 

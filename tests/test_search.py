@@ -390,6 +390,7 @@ def test_a_set_with_missing_tiles_keeps_its_true_grid(tmp_path, image, missing):
     assert scores.direct == pytest.approx((100 - missing) / 100)
     evidence = result.search.shape_evidence
     assert evidence["trusted_segment"]["tiles"] >= 25
+    assert evidence["margin_of"] == "best-buddy seams"  # no nodata: holes are discounted evidence
 
 
 def _collar_folder(tmp_path, tile, angle, cover, rotate=0, keep=1):
@@ -459,6 +460,7 @@ def test_grid_inference_on_a_collar_with_half_its_cells_empty(tmp_path):
     result = solve(tmp_path / "t", tmp_path / "m.tif", options=SolveOptions(seed=1))
     assert result.placement.shape == box
     assert not result.search.shape_evidence["thin"]
+    assert result.search.shape_evidence["margin_of"] == "search objective"  # the collar's holes are priced
     solid = []
     for i, name in enumerate(key.names):
         with rasterio.open(tmp_path / "t" / name) as t:

@@ -105,7 +105,11 @@ class ShapeChoice:
         the other's placement; with quarter turns either way round).
     margin : float or None
         How much more evidence the chosen shape has than the runner-up: the
-        relative difference of their (hole-discounted) best-buddy seams.
+        relative difference of what ranks the shapes, named by
+        :attr:`margin_of`.
+    margin_of : str
+        ``"best-buddy seams"`` (hole-discounted), or ``"search objective"``
+        for sets with a nodata collar, whose empty cells the objective prices.
     segment : Segment or None
         The largest trusted segment (:func:`stitch.search.assembly.trusted_segments`),
         whose box every shape tried contains.
@@ -118,6 +122,7 @@ class ShapeChoice:
     runner_up: tuple | None = None
     margin: float | None = None
     segment: Segment | None = None
+    margin_of: str = "best-buddy seams"
 
     @property
     def thin(self):
@@ -134,6 +139,7 @@ class ShapeChoice:
             "search_frame": list(self.shape),
             "runner_up": list(self.runner_up) if self.runner_up else None,
             "margin": None if self.margin is None else round(float(self.margin), 4),
+            "margin_of": self.margin_of,
             "thin": self.thin,
             "trusted_segment": {"tiles": len(seg), "box": list(seg.box)} if seg is not None else None,
             "shapes_tried": len(self.scores),
@@ -367,4 +373,4 @@ def choose_shape(problem, seed, *, settings, shape=None, holes=False, regrow_con
         log.info("grid %dx%d inferred from %d shapes%s", best[0], best[1], len(shapes),
                  f" (runner-up {runner_up[0]}x{runner_up[1]}, margin {margin:.1%})" if runner_up else "")
     return ShapeChoice(best, grids[best], scores, inferred=shape is None, runner_up=runner_up, margin=margin,
-                       segment=segment)
+                       segment=segment, margin_of="search objective" if collar else "best-buddy seams")
