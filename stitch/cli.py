@@ -26,7 +26,6 @@ from .orientation import TURN_MODES
 from .tiles import MAX_TILE_PIXELS
 
 
-
 class _Command(typer.core.TyperCommand):
     """A command whose usage line names its arguments as the help lists them
     (``stitch solve [OPTIONS] TILES_DIR``), without typer's braces."""

@@ -84,13 +84,13 @@ class GcpFit:
     rmse_map: float
     rmse_px: float
     outliers: tuple
-    residuals_xy: np.ndarray | None = None
-    points: tuple = ()
+    residuals_xy: np.ndarray
+    points: tuple
 
     def label(self, i):
         """How point ``i`` is named in messages: its number and tile."""
-        p = self.points[i] if i < len(self.points) else None
-        return f"#{i + 1}" + (f" ({p.tile} at col {p.col:g}, row {p.row:g})" if p is not None else "")
+        p = self.points[i]
+        return f"#{i + 1} ({p.tile} at col {p.col:g}, row {p.row:g})"
 
 
 #: Largest coordinate a control file may hold: beyond any CRS's extent in

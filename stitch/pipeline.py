@@ -384,7 +384,7 @@ def _edge_evidence(shape, tileset):
             "partial_tiles": int(tileset.partial.sum())}
 
 
-def check_crs_alone(spec, tileset):
+def _check_crs_alone(spec, tileset):
     """A ``--crs`` with no bounds, origin or control points can only name the
     CRS of anchor tiles that lack one (a world file without a ``.prj``).
     Refuse it otherwise, before the search: alone it places nothing, and
@@ -535,7 +535,7 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
     if tileset.structureless().all() and not (options.grid and options.pins):
         raise TileSetError(f"no tile in {str(tiles_dir)!r} shows ground detail (all are constant or noise-like, "
                            "as open water or haze): no seam can be matched: " + NO_EVIDENCE_ADVICE)
-    check_crs_alone(options.georef, tileset)
+    _check_crs_alone(options.georef, tileset)
     if tileset.skipped:
         notes.append(skipped_note(tileset.skipped))
     notes.extend(_duplicate_notes(tileset))
