@@ -47,7 +47,11 @@ __all__ = ["CutResult", "Scores", "cut_raster", "flight_block_mask", "parse_tile
 
 log = logging.getLogger(__name__)
 
-_FORMATS = {"tif": ("GTiff", ".tif"), "png": ("PNG", ".png")}
+_FORMATS = {"tif": ("GTiff", ".tif"), "png": ("PNG", ".png"), "jpg": ("JPEG", ".jpg")}
+
+#: JPEG quality of tiles cut with ``fmt="jpg"``: the libjpeg default, and what
+#: tilers commonly write (common practice, no source).
+JPEG_QUALITY = 75
 
 
 @dataclass(frozen=True)
@@ -99,6 +103,9 @@ def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
         prof = dict(profile, driver=driver, width=pixels.shape[2], height=pixels.shape[1])
         if driver == "GTiff":
             prof.update(compress="deflate", predictor=3 if np.dtype(pixels.dtype).kind == "f" else 2)
+        if driver == "JPEG":
+            prof.update(quality=JPEG_QUALITY)
+            prof.pop("nodata", None)  # JPEG holds no nodata; the pixels keep their values
         if driver == "GTiff" and transform is not None:
             prof.update(transform=transform, crs=crs)
         with warnings.catch_warnings():
@@ -115,7 +122,7 @@ def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
 
 def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False, keep_georef=0,
                rotations=0, mirrored=False, fmt="tif", key_path=None, seed=0, overwrite=False, skip_empty=False,
-               partial=False):
+               partial=False, overlap=0):
     """Cut a raster into whole tiles and write them with an answer key.
 
     Parameters
@@ -134,7 +141,8 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         Store tiles turned at random by half or quarter turns.
     mirrored : bool
         Store tiles mirrored at random.
-    fmt : {"tif", "png"}
+    fmt : {"tif", "png", "jpg"}
+        JPEG tiles are written at :data:`JPEG_QUALITY`, 8-bit only.
     key_path : path-like, optional
         Answer key CSV; default ``out_dir/answer_key.csv``.
     seed : int
@@ -146,6 +154,9 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         Keep the raster's remainder as narrower tiles in the last column and
         shorter ones in the last row, as tilers write it (by default it is
         dropped).
+    overlap : int
+        Pixels each tile repeats of its neighbours, as exports cut with a
+        buffer: tiles start every ``tile_size - overlap`` pixels.
 
     Returns
     -------
@@ -160,6 +171,9 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         raise OptionError(f"--rotations must be one of {sorted(TURN_MODES)}, not {rotations!r}")
     if rotations == 90 and tw != th:
         raise OptionError("quarter turns need square tiles; use --rotations 180 or a square --tile-size")
+    if not 0 <= overlap < min(tw, th):
+        raise OptionError(f"--overlap {overlap} must be at least 0 and less than the tile size ({min(tw, th)} px)")
+    sx, sy = tw - overlap, th - overlap
     driver, ext = _FORMATS[fmt]
     rng = np.random.default_rng(seed)
     out_dir = Path(out_dir)
@@ -169,15 +183,19 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
     except RasterioError as exc:
         raise RasterReadError(f"cannot read raster {str(raster)!r}: {exc}") from exc
     with src:
-        rows, cols = src.height // th, src.width // tw
-        if rows * cols == 0:
+        if driver == "JPEG" and src.dtypes[0] != "uint8":
+            raise OptionError(f"JPEG tiles hold 8-bit pixels, and {str(raster)!r} is {src.dtypes[0]}; "
+                              "use --format tif or png")
+        if src.width < tw or src.height < th:
             raise OptionError(f"--tile-size {tw}x{th} is larger than {str(raster)!r} ({src.width}x{src.height})")
+        # Tiles start every step; each holds `overlap` pixels of the next.
+        rows, cols = (src.height - overlap) // sy, (src.width - overlap) // sx
         if partial:
-            rows, cols = -(-src.height // th), -(-src.width // tw)
-        dropped = (0, 0) if partial else (src.width % tw, src.height % th)
+            rows, cols = -(-(src.height - overlap) // sy), -(-(src.width - overlap) // sx)
+        dropped = (0, 0) if partial else ((src.width - overlap) % sx, (src.height - overlap) % sy)
         n = rows * cols
-        windows = [Window((k % cols) * tw, (k // cols) * th, min(tw, src.width - (k % cols) * tw),
-                          min(th, src.height - (k // cols) * th)) for k in range(n)]
+        windows = [Window((k % cols) * sx, (k // cols) * sy, min(tw, src.width - (k % cols) * sx),
+                          min(th, src.height - (k // cols) * sy)) for k in range(n)]
         # GDAL's dataset mask: 0 where a pixel is nodata in every band.
         empty = (np.array([not src.dataset_mask(window=w).any() for w in windows], bool) if skip_empty
                  else np.zeros(n, bool))
