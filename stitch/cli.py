@@ -287,6 +287,7 @@ def solve(
     recursive: Annotated[bool, typer.Option("--recursive", help="Also read tiles in sub-folders.")] = False,
     cog: Annotated[bool, typer.Option("--cog", help="Write a Cloud Optimized GeoTIFF (GDAL's COG driver).")] = False,
     max_tile_pixels: Annotated[int, typer.Option(metavar="N", help="Refuse tiles whose header claims more pixels.")] = MAX_TILE_PIXELS,
+    overlap: Annotated[Optional[int], typer.Option(metavar="PX", help="Pixels each tile repeats of its neighbours; found in the pixels when not given, 0 for none.")] = None,
     fail_if_doubtful: Annotated[bool, typer.Option(
         "--fail-if-doubtful", help=f"Exit with code {DOUBTFUL_EXIT} when the run's verdict is doubtful "
                                    "(the outputs are still written), for scripts.")] = False,
@@ -311,7 +312,7 @@ def solve(
         size = None if pixel_size is None else (pixel_size, pixel_size_y or pixel_size)
         options = SolveOptions(
             grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive, pins=pins, cog=cog,
-            max_tile_pixels=max_tile_pixels,
+            max_tile_pixels=max_tile_pixels, overlap=overlap,
             search=SearchSettings(strategy=search, population=population, generations=generations,
                                   time_limit=time_limit),
             georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs,
@@ -333,6 +334,8 @@ def solve(
                f"({how}, seams by {result.measure}, seed {seed})")
     if s.shape_evidence is not None:
         typer.echo(_grid_line(p.shape, s.shape_evidence))
+    if result.overlap is not None and result.overlap.overlap:
+        typer.echo(f"{result.overlap.describe()}; shared strips merged once, from the tile right of or below")
     g = result.georeference
     typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
     f = result.facts
@@ -367,10 +370,11 @@ def cut(
     keep_georef: Annotated[int, typer.Option(metavar="N", help="With --strip-georef: this many tiles (random, upright) keep it.")] = 0,
     rotations: Annotated[int, typer.Option(metavar="0|180|90", help="Store tiles turned at random: 0, 180 (half turns) or 90 (quarter turns).")] = 0,
     mirrored: Annotated[bool, typer.Option("--mirrored", help="Store tiles mirrored left-right at random.")] = False,
-    tile_format: Annotated[str, typer.Option("--format", metavar="tif|png", help="Tile format.")] = "tif",
+    tile_format: Annotated[str, typer.Option("--format", metavar="tif|png|jpg", help="Tile format (jpg: 8-bit, quality 75).")] = "tif",
     key: Annotated[Optional[Path], typer.Option(metavar="FILE.csv", help="Answer key CSV (default: DIR/answer_key.csv).")] = None,
     skip_empty: Annotated[bool, typer.Option("--skip-empty", help="Do not write tiles that hold only nodata, as tilers skip them.")] = False,
     partial: Annotated[bool, typer.Option("--partial", help="Keep the raster's remainder as narrower and shorter tiles in the last column and row.")] = False,
+    overlap: Annotated[int, typer.Option(metavar="PX", help="Pixels each tile repeats of its neighbours (tiles start every tile size - PX pixels).")] = 0,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,
@@ -384,7 +388,8 @@ def cut(
     with _errors(verbose, quiet):
         result = cut_raster(raster, output, parse_tile_size(tile_size), shuffle=shuffle, strip_georef=strip_georef,
                             keep_georef=keep_georef, rotations=rotations, mirrored=mirrored, fmt=tile_format, key_path=key,
-                            seed=seed, overwrite=overwrite, skip_empty=skip_empty, partial=partial)
+                            seed=seed, overwrite=overwrite, skip_empty=skip_empty, partial=partial,
+                            overlap=overlap)
     if not quiet:
         k = result.key
         skipped = k.shape[0] * k.shape[1] - len(k.names)
@@ -433,6 +438,7 @@ def inspect(
     grid: Annotated[Optional[str], typer.Option(metavar="ROWSxCOLS", help="Grid you would give solve.")] = None,
     rotations: Annotated[int, typer.Option(metavar="0|180|90", help="Turns a tile may need, as for solve.")] = 0,
     mirrored: Annotated[bool, typer.Option("--mirrored", help="Tiles may also be mirrored, as for solve.")] = False,
+    overlap: Annotated[Optional[int], typer.Option(metavar="PX", help="Overlap you would give solve; found in the pixels when not given.")] = None,
     infer: Annotated[bool, typer.Option(
         "--infer", help="Also place the tiles as solve would (nothing written; takes about as long) and report "
                         "the grid found, how sure its inference is and the run's verdict.")] = False,
@@ -448,7 +454,7 @@ def inspect(
     shape = _parse_grid(grid)
     with _errors(verbose):
         found = inspect_tiles(tiles_dir, recursive=recursive, rotations=rotations, mirrored=mirrored, grid=shape,
-                              infer=infer, seed=seed)
+                              infer=infer, seed=seed, overlap=overlap)
     if as_json:
         typer.echo(json.dumps(found.as_dict(), indent=2))
     else:
@@ -458,6 +464,8 @@ def inspect(
                        f"{found.dtype}, {nodata}")
             typer.echo(f"blank tiles: {len(found.blank)}" + (f" ({', '.join(found.blank[:5])})" if found.blank else ""))
             typer.echo(f"groups of duplicate tiles: {len(found.duplicates)}")
+            if found.overlap is not None:
+                typer.echo(found.overlap["description"])
             facts = []
             if found.anchors_agree is not None:
                 facts.append("they agree" if found.anchors_agree else "they DISAGREE")

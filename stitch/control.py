@@ -198,19 +198,23 @@ def fit_similarity(src, dst):
     return x0, y0, a, b
 
 
-def mosaic_point(placement, index, col, row, width, height):
+def mosaic_point(placement, index, col, row, width, height, step=None):
     """Where a position inside a tile file lands in the mosaic, in pixels.
 
     Follows the tile's mirror and clockwise quarter turns
     (:func:`stitch.orientation.orient_point`); coordinates are continuous
-    (pixel corners).
+    (pixel corners). Cells start every ``step`` pixels (default the tile
+    size; less for tiles that overlap).
     """
+    sx, sy = (width, height) if step is None else step
     u, v = orient_point(col, row, width, height, placement.rotations[index], placement.mirrored[index])
-    return placement.cols[index] * width + u, placement.rows[index] * height + v
+    return placement.cols[index] * sx + u, placement.rows[index] * sy + v
 
 
-def fit_control(points, placement, width, height, *, similarity=False):
+def fit_control(points, placement, width, height, *, similarity=False, step=None):
     """Fit the mosaic transform to control points given in tile coordinates.
+
+    ``step`` is as in :func:`mosaic_point`.
 
     Raises
     ------
@@ -223,7 +227,7 @@ def fit_control(points, placement, width, height, *, similarity=False):
         i = index.get(p.tile)
         if i is None or placement.rows[i] < 0:
             raise GeoreferenceError(f"control point names tile {p.tile!r}, which is not placed; check the name")
-        src.append(mosaic_point(placement, i, p.col, p.row, width, height))
+        src.append(mosaic_point(placement, i, p.col, p.row, width, height, step))
         dst.append((p.x, p.y))
     src, dst = np.array(src), np.array(dst)
     if similarity or len(points) == 2:

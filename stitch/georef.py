@@ -280,7 +280,8 @@ def from_anchors(placement, tileset):
     """Georeference the mosaic from placed tiles that kept their georeferencing.
 
     Each anchor tile at cell ``(row, col)`` implies a mosaic transform
-    ``T_tile * translation(-col * width, -row * height)``. Anchors must be
+    ``T_tile * translation(-col * step_x, -row * step_y)``, the step being
+    the tile size less any overlap (:attr:`stitch.tiles.TileSet.step`). Anchors must be
     upright and unmirrored in the placement (a turned anchor means the frame
     is wrong), share a CRS and agree within :data:`ANCHOR_TOLERANCE_PX`.
 
@@ -306,7 +307,7 @@ def from_anchors(placement, tileset):
                 f"{placement.rotations[i] * 90} degrees{' and mirrored' if placement.mirrored[i] else ''}; "
                 "pin it or solve with --rotations 0"
             )
-        implied.append(g.transform @ ~_tile_offset(placement, i, tileset.width, tileset.height))
+        implied.append(g.transform @ ~_tile_offset(placement, i, *tileset.step))
     ref, ref_i = implied[0], anchors[0]
     ref_crs = tileset.georefs[ref_i].crs
     for t, i in zip(implied[1:], anchors[1:]):
@@ -317,7 +318,7 @@ def from_anchors(placement, tileset):
                 f"({ref_crs} vs {crs}); reproject one or remove its georeferencing"
             )
         # Compare where both put the mosaic's corners, in pixels of the first.
-        corners = [(0, 0), (placement.shape[1] * tileset.width, placement.shape[0] * tileset.height)]
+        corners = [(0, 0), (placement.shape[1] * tileset.step[0], placement.shape[0] * tileset.step[1])]
         worst_px, worst_map = 0.0, 0.0
         for c in corners:
             a = np.array(ref @ c)
@@ -339,7 +340,7 @@ def anchor_cells(tileset):
     """Relative cells of the tiles that kept georeferencing, checked for agreement.
 
     Each anchor's upper-left corner, expressed in pixels of the first anchor,
-    must fall on the tile grid (whole multiples of the tile size, within
+    must fall on the tile grid (whole multiples of the step, within
     :data:`ANCHOR_TOLERANCE_PX`), with the same CRS and pixel size.
 
     Returns
@@ -375,11 +376,11 @@ def anchor_cells(tileset):
                 "resample one or remove its georeferencing"
             )
         col, row = ~first.transform @ (g.transform.c, g.transform.f)
-        tc, tr = col / tileset.width, row / tileset.height
-        off_px = float(np.hypot((tc - round(tc)) * tileset.width, (tr - round(tr)) * tileset.height))
+        sx, sy = tileset.step
+        tc, tr = col / sx, row / sy
+        off_px = float(np.hypot((tc - round(tc)) * sx, (tr - round(tr)) * sy))
         if off_px > ANCHOR_TOLERANCE_PX:
-            dx, dy = (np.array(g.transform @ (0, 0)) - np.array(first.transform @ (round(tc) * tileset.width,
-                                                                                  round(tr) * tileset.height)))
+            dx, dy = (np.array(g.transform @ (0, 0)) - np.array(first.transform @ (round(tc) * sx, round(tr) * sy)))
             raise GeoreferenceError(
                 f"anchor tiles {name0!r} and {name!r} are not on one tile grid: off by {off_px:.2f} px "
                 f"({float(np.hypot(dx, dy)):.3f} map units); fix or remove one's georeferencing"

@@ -73,10 +73,13 @@ def mosaic_size(tileset, placement):
 
     The grid of full-size cells, except that a last column (row) holding
     only partial edge tiles is as wide (high) as they are, so the mosaic of
-    a tiled export has exactly the source raster's size.
+    a tiled export has exactly the source raster's size. Cells start every
+    :attr:`~stitch.tiles.TileSet.step` pixels, so tiles that overlap their
+    neighbours span their shared strips once.
     """
     rows, cols = placement.shape
-    width, height = cols * tileset.width, rows * tileset.height
+    sx, sy = tileset.step
+    width, height = (cols - 1) * sx + tileset.width, (rows - 1) * sy + tileset.height
     if tileset.sizes is None or not placement.placed.any():
         return width, height
     p = np.flatnonzero(placement.placed)
@@ -86,9 +89,9 @@ def mosaic_size(tileset, placement):
     last_col = placement.cols[p] == cols - 1
     last_row = placement.rows[p] == rows - 1
     if last_col.any():
-        width = (cols - 1) * tileset.width + int(w[last_col].max())
+        width = (cols - 1) * sx + int(w[last_col].max())
     if last_row.any():
-        height = (rows - 1) * tileset.height + int(h[last_row].max())
+        height = (rows - 1) * sy + int(h[last_row].max())
     return width, height
 
 
@@ -202,13 +205,15 @@ def _write_pixels(tmp, profile, tileset, placement, georef, nodata, has_holes, m
                 _clear_mask(dst)
             done = 0
             # Row-major cell order: each output block is finished before the
-            # writer moves on, so GDAL's cache stays small.
+            # writer moves on, so GDAL's cache stays small. Where tiles
+            # overlap, the shared strip is written twice and the later tile
+            # (right of, or below, the other) is kept.
             placed = np.flatnonzero(placement.placed)
             order = placed[np.lexsort((placement.cols[placed], placement.rows[placed]))]
+            sx, sy = tileset.step
             for i in order:
                 pixels = orient(tileset.read(i), placement.rotations[i], placement.mirrored[i])
-                window = Window(placement.cols[i] * tileset.width, placement.rows[i] * tileset.height,
-                                pixels.shape[2], pixels.shape[1])
+                window = Window(placement.cols[i] * sx, placement.rows[i] * sy, pixels.shape[2], pixels.shape[1])
                 dst.write(pixels, window=window)
                 if masked:
                     dst.write_mask(np.full(pixels.shape[1:], 255, np.uint8), window=window)

@@ -34,7 +34,9 @@ from .georef import (
     world_file_path,
 )
 from .layout import Placement, allowed_orientations, normalize_frame
-from .partial import partial_edges, partial_grid
+from .measures import overlap as overlap_measure
+from .overlap import find_overlap, overlap_strips
+from .partial import outer_offsets, partial_edges, partial_grid
 from .mosaic import mosaic_size, write_mosaic
 from .report import check_report, report_paths, write_report
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
@@ -80,6 +82,10 @@ class SolveOptions:
     pins : tuple of (name, row, col)
         Tiles whose grid cell is known; they never move. Without pins, tiles
         that kept georeferencing are pinned relative to each other.
+    overlap : int or None
+        Pixels each tile shares with each neighbour; found in the pixels when
+        None (:func:`stitch.overlap.find_overlap`), 0 for tiles that meet edge
+        to edge.
     """
 
     grid: tuple[int, int] | None = None
@@ -95,8 +101,11 @@ class SolveOptions:
     pins: tuple = ()
     cog: bool = False
     max_tile_pixels: int = MAX_TILE_PIXELS
+    overlap: int | None = None
 
     def __post_init__(self):
+        if self.overlap is not None and self.overlap < 0:
+            raise OptionError(f"--overlap must be 0 or more pixels, got {self.overlap}")
         if self.grid is not None and (len(self.grid) != 2 or min(self.grid) < 1):
             raise OptionError(f"--grid must be ROWSxCOLS with both at least 1, got {self.grid}")
         if not 0 <= self.confidence_threshold <= 1:
@@ -149,6 +158,8 @@ class SolveResult:
         flagged tiles look just like it) or ``"doubtful"``.
     started : str
         When the run began (ISO 8601, UTC).
+    overlap : stitch.overlap.OverlapFinding or None
+        The overlap the tiles were placed and merged with, and its evidence.
     """
 
     placement: Placement
@@ -166,6 +177,7 @@ class SolveResult:
     verdict: object = None
     review: np.ndarray | None = None
     started: str = ""
+    overlap: object = None
 
     @property
     def facts(self):
@@ -344,7 +356,16 @@ def place_tiles(tileset, options=None, *, progress=None):
         raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
     edges, outer = partial_edges(tileset, orientations)
-    table = score_seams(edges, orientations=orientations, measure=options.measure, k=options.candidates,
+    measure = options.measure
+    if tileset.overlap:
+        if measure != DEFAULT_MEASURE:
+            raise OptionError(f"--seam {measure} compares edges that meet, but the tiles overlap by "
+                              f"{tileset.overlap} px and are placed by their shared strips; drop --seam, or give "
+                              "--overlap 0 if they do not overlap")
+        offsets = None if tileset.sizes is None else outer_offsets(outer, tileset.sizes, tileset.width,
+                                                                   tileset.height)
+        edges, measure = overlap_strips(tileset, tileset.overlap, offsets=offsets), overlap_measure
+    table = score_seams(edges, orientations=orientations, measure=measure, k=options.candidates,
                         blank=tileset.blank, progress=progress)
     pins = _pins(tileset, options)
     # A complete partial column and row fix the grid (their counts).
@@ -426,7 +447,7 @@ def _georeference(options, placement, tileset):
         return Georeference(anchored.transform, parse_crs(spec.crs), f"{anchored.source} (CRS from --crs)"), None
     if spec.gcps is not None:
         fit = fit_control(read_gcps(spec.gcps), placement, tileset.width, tileset.height,
-                          similarity=spec.similarity)
+                          similarity=spec.similarity, step=tileset.step)
         crs = parse_crs(spec.crs)
         g = Georeference(fit.transform, crs,
                          f"{len(fit.residuals_map)} ground control points, {fit.method}, "
@@ -536,6 +557,10 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
         raise TileSetError(f"no tile in {str(tiles_dir)!r} shows ground detail (all are constant or noise-like, "
                            "as open water or haze): no seam can be matched: " + NO_EVIDENCE_ADVICE)
     _check_crs_alone(options.georef, tileset)
+    found = find_overlap(tileset, given=options.overlap, seed=options.seed)
+    if found.overlap:
+        tileset = replace(tileset, overlap=found.overlap)
+        notes.append(found.describe())
     if tileset.skipped:
         notes.append(skipped_note(tileset.skipped))
     notes.extend(_duplicate_notes(tileset))
@@ -593,7 +618,7 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
             timings["write"] = time.perf_counter() - t0
             outputs.update({f"report_{k}": v for k, v in report_paths(report_dir).items()})
             result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes),
-                                 fit, sides, frozenset(pins.tiles), table.measure, verdict, review, started)
+                                 fit, sides, frozenset(pins.tiles), table.measure, verdict, review, started, found)
             write_report(result, report_dir, overwrite=overwrite)
     except BaseException:
         if not report_existed and report_dir.is_dir() and not any(report_dir.iterdir()):

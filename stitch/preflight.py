@@ -9,13 +9,14 @@ shapes, an estimate of run time and memory, and the problems that would stop
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 
 from .errors import StitchError
 from .georef import anchor_cells, map_units, pixel_size
 from .layout import allowed_orientations
+from .overlap import find_overlap
 from .search import candidate_shapes, kernels_compiled
 from .seams import auto_tries_prediction, count_blocks, keeps_dense
 from .tiles import read_tileset, skipped_note
@@ -25,7 +26,11 @@ __all__ = ["Inspection", "inspect_tiles"]
 
 @dataclass(frozen=True)
 class Inspection:
-    """Findings of :func:`inspect_tiles`; ``problems`` empty means solve can run."""
+    """Findings of :func:`inspect_tiles`; ``problems`` empty means solve can run.
+
+    ``overlap`` is :meth:`stitch.overlap.OverlapFinding.facts` with its
+    one-line ``description``, or None when it could not be looked for.
+    """
 
     folder: str
     tiles: int = 0
@@ -44,6 +49,7 @@ class Inspection:
     anchor_crs: str | None = None
     anchor_pixel_size: tuple | None = None
     anchor_units: str | None = None
+    overlap: dict | None = None
     problems: tuple = ()
     notes: tuple = field(default=())
     inferred_grid: tuple | None = None
@@ -74,7 +80,8 @@ def _estimate(n, size, bands, quarter=False):
     return seam_s + search_s + 2, mem  # 2 s: starting Python, reading headers, writing
 
 
-def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=None, infer=False, seed=0):
+def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=None, infer=False, seed=0,
+                  overlap=None):
     """Check a tile folder before solving.
 
     Parameters
@@ -93,6 +100,9 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
         found, how sure its inference is and the run's verdict. Takes about
         as long as ``solve``.
     seed : int, optional
+    overlap : int, optional
+        The overlap the user would give ``solve`` (``--overlap``); found in
+        the pixels, as ``solve`` does, when None.
 
     Returns
     -------
@@ -118,6 +128,15 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
         notes.append(f"{len(blank)} blank tile(s) will be placed with no evidence")
     if ts.skipped:
         notes.append(skipped_note(ts.skipped))
+    overlap_facts = None
+    if n >= 2 and not ts.blank.all():
+        try:
+            finding = find_overlap(ts, given=overlap, seed=seed)
+            overlap_facts = finding.facts()
+            overlap_facts["description"] = finding.describe()
+            ts = replace(ts, overlap=finding.overlap)
+        except StitchError as exc:
+            problems.append(str(exc))
     duplicates = ts.duplicate_groups()
     if duplicates:
         notes.append(f"{len(duplicates)} group(s) of tiles with identical edges: they are interchangeable")
@@ -142,18 +161,18 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
     seconds, memory = _estimate(n, max(ts.width, ts.height), ts.count, quarter=rotations == 90)
     found = {}
     if infer and not problems:
-        found = _infer(ts, rotations, mirrored, grid, seed)
+        found = _infer(ts, rotations, mirrored, grid, seed, ts.overlap)
     return Inspection(
         folder=str(folder), tiles=n, tile_size=(ts.width, ts.height), bands=ts.count, dtype=ts.dtype,
         nodata=ts.nodata, blank=blank, duplicates=duplicates, georeferenced=georef, anchors_agree=agree,
         grid_shapes=shapes, estimated_seconds=round(seconds, 1), estimated_memory_mb=round(memory),
         kernels_compiled=kernels_compiled(), anchor_crs=anchor_crs, anchor_pixel_size=anchor_pixel,
-        anchor_units=anchor_units,
+        anchor_units=anchor_units, overlap=overlap_facts,
         problems=tuple(problems), notes=tuple(notes), **found,
     )
 
 
-def _infer(tileset, rotations, mirrored, grid, seed):
+def _infer(tileset, rotations, mirrored, grid, seed, overlap):
     """The placement ``solve`` would make, down to what ``inspect`` reports."""
     import time
 
@@ -161,7 +180,7 @@ def _infer(tileset, rotations, mirrored, grid, seed):
     from .pipeline import SolveOptions, place_tiles
 
     t0 = time.perf_counter()
-    options = SolveOptions(grid=grid, rotations=rotations, mirrored=mirrored, seed=seed)
+    options = SolveOptions(grid=grid, rotations=rotations, mirrored=mirrored, seed=seed, overlap=overlap)
     placement, search, table, _ = place_tiles(tileset, options)
     verdict = run_verdict(placement, table, threshold=options.confidence_threshold, grid_given=grid is not None,
                           shape_evidence=search.shape_evidence)

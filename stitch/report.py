@@ -99,6 +99,7 @@ def summary_dict(result):
                    "tile_size": [result.tileset.width, result.tileset.height],
                    "bands": result.tileset.count, "dtype": result.tileset.dtype,
                    "nodata": result.tileset.nodata,
+                   "overlap": result.overlap.facts() if result.overlap is not None else None,
                    "blank_tiles": [result.tileset.names[i] for i in np.flatnonzero(result.tileset.blank)]},
         "options": result.options.as_dict(),
         "grid": list(p.shape),

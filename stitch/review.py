@@ -38,15 +38,17 @@ WHITE = (255, 255, 255)
 PREVIEW_MAX = 2000
 
 
-def footprints(placement, transform, width, height, sizes=None):
+def footprints(placement, transform, width, height, sizes=None, step=None):
     """Shapely polygons of every placed tile in the mosaic's coordinates (index -> polygon).
 
     ``sizes`` (per tile file, see :attr:`stitch.tiles.TileSet.sizes`) gives
-    partial edge tiles their own extent inside their cell.
+    partial edge tiles their own extent inside their cell; ``step`` (default
+    the tile size) is where cells start, less for tiles that overlap.
     """
+    sx, sy = (width, height) if step is None else step
     out = {}
     for i in np.flatnonzero(placement.placed):
-        c0, r0 = placement.cols[i] * width, placement.rows[i] * height
+        c0, r0 = placement.cols[i] * sx, placement.rows[i] * sy
         w, h = (width, height) if sizes is None else (int(sizes[i, 0]), int(sizes[i, 1]))
         if placement.rotations[i] % 2:
             w, h = h, w
@@ -75,7 +77,7 @@ def tiles_geojson(result, *, native=False):
     from rasterio.warp import transform as warp
 
     p, ts, g = result.placement, result.tileset, result.georeference
-    shapes = footprints(p, g.transform, ts.width, ts.height, ts.sizes)
+    shapes = footprints(p, g.transform, ts.width, ts.height, ts.sizes, ts.step)
     threshold = result.options.confidence_threshold
     features = []
     for i, poly in shapes.items():
@@ -145,6 +147,15 @@ def _font(size=14):
         return ImageFont.load_default()
 
 
+def _overlap_text(facts):
+    """The overlap line of the page, from ``summary.json``'s ``inputs.overlap``."""
+    if not facts or not facts["pixels"]:
+        return "none" + (" found" if facts and facts["source"] == "none" else " (given)" if facts else "")
+    how = "given" if facts["source"] == "given" else \
+        f"found: {facts['share']:.0%} of {facts['sampled_sides']} sampled sides match"
+    return f"{facts['pixels']} px ({how}); each shared strip is taken from the tile right of or below it"
+
+
 def preview_png(result):
     """PNG bytes: the mosaic at most :data:`PREVIEW_MAX` px, tile grid, marks, legend."""
     p, ts = result.placement, result.tileset
@@ -160,7 +171,8 @@ def preview_png(result):
     img = Image.new("RGB", (w, h + legend_h), WHITE)
     img.paste(Image.fromarray(rgb), (0, 0))
     draw = ImageDraw.Draw(img, "RGBA")
-    cw, chh = w / cols, h / rows
+    # Cells start every step (the tile size less any overlap).
+    cw, chh = ts.step[0] * w / full_w, ts.step[1] * h / full_h
     tiles, _ = p.grid()
     for r in range(rows):  # holes: grey hatching
         for c in range(cols):
@@ -273,8 +285,10 @@ def index_html(summary, preview, convergence, flagged_rows):
         ("run", f"started {summary['run']['started']}, stitch {summary['run']['stitch']}"),
         ("search", f"{summary['search']['strategy']}, {summary['search']['generations']} generations, "
                    f"seed {summary['options']['seed']}"),
+        ("overlap", _overlap_text(summary["inputs"].get("overlap"))),
         ("seam measure", summary["seam_measure"]
-         + (" (chosen by auto)" if summary["options"]["measure"] == "auto" else "")),
+         + (" (shared strips of overlapping tiles)" if summary["seam_measure"] == "overlap"
+            else " (chosen by auto)" if summary["options"]["measure"] == "auto" else "")),
         ("flagged tiles", str(len(summary["flagged_tiles"]))),
     ]
     facts_html = "\n".join(f"<tr><th>{html.escape(k)}</th><td>{html.escape(v)}</td></tr>" for k, v in facts)

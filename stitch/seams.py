@@ -149,8 +149,9 @@ def keeps_dense(n_tiles, blocks):
 
 
 def _row_valid(valid):
-    """Rows of a strip usable by a measure: inner and boundary pixel both valid."""
-    return valid[..., 0] & valid[..., 1]
+    """Rows of a strip usable by a measure: inner and boundary pixel both valid
+    (the deepest and the boundary pixel of a deeper strip)."""
+    return valid[..., 0] & valid[..., -1]
 
 
 def seam_block(measure, left, right, left_valid=None, right_valid=None, *, flip=False):
@@ -160,9 +161,10 @@ def seam_block(measure, left, right, left_valid=None, right_valid=None, *, flip=
     ----------
     measure : callable
         A measure from :mod:`stitch.measures` (or a plugin).
-    left, right : ndarray, shape (n, length, 2, bands)
+    left, right : ndarray, shape (n, length, depth, bands)
         Normalised strips of the two sides, each in its own row order
-        (:mod:`stitch.tiles`).
+        (:mod:`stitch.tiles`); ``depth`` is 2, or the overlap for
+        :func:`stitch.measures.overlap`.
     left_valid, right_valid : ndarray of bool, shape (n, length), optional
         Usable rows.
     flip : bool
@@ -647,7 +649,7 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     sides = normalize_strips(edges.sides, edges.valid)
     rows_ok = [_row_valid(v) for v in edges.valid]
     masked = not all(r.all() for r in rows_ok)
-    boundary_ok = [v[..., 1] for v in edges.valid]  # validity of each side's boundary pixels
+    boundary_ok = [v[..., -1] for v in edges.valid]  # validity of each side's boundary pixels
     n = sides[0].shape[0]
     blank = np.zeros(n, bool) if blank is None else np.asarray(blank, bool)
     dead = np.stack([blank | (r.sum(axis=1) < 2) for r in rows_ok], axis=1)  # (n, 4)

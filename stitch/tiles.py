@@ -205,6 +205,9 @@ class TileSet:
     skipped : tuple of str
         Files in the folder that are neither rasters nor tiles' sidecars
         (:func:`scan_folder`), for the run's notes.
+    overlap : int
+        Pixels each tile shares with each neighbour (0: tiles meet edge to
+        edge); set once found (:func:`stitch.overlap.find_overlap`).
     """
 
     folder: Path
@@ -220,6 +223,13 @@ class TileSet:
     colorinterp: tuple = ()
     sizes: np.ndarray | None = None
     skipped: tuple[str, ...] = ()
+    overlap: int = 0
+
+    @property
+    def step(self):
+        """``(x, y)`` pixels from one cell's upper-left corner to the next's:
+        the tile size less the overlap."""
+        return self.width - self.overlap, self.height - self.overlap
 
     @property
     def partial(self):
