@@ -252,3 +252,17 @@ def test_control_points_on_overlapping_tiles_land_a_step_apart(tmp_path):
     assert result.control.rmse_px < 1e-6
     got = result.georeference.transform
     assert got.almost_equals(transform, precision=1e-6)
+
+
+def test_an_overlap_shared_by_a_few_tiles_only_is_refused(tmp_path):
+    """Nine tiles cut with a 10 px overlap (scikit-image's retina, CC0)
+    among 42 that meet edge to edge (coffee, CC0): neither "no overlap" nor
+    "10 px" is right for the folder, so the run stops with the candidate."""
+    src = _coffee(tmp_path)
+    cut_raster(src, tmp_path / "t", 48, shuffle=True, strip_georef=True, seed=1, key_path=tmp_path / "a.csv")
+    other = write_raster(tmp_path / "other.tif", skimage_image("retina")[:, 500:624, 500:624])
+    cut_raster(other, tmp_path / "b", 48, shuffle=True, overlap=10, seed=1, key_path=tmp_path / "b.csv")
+    for i, p in enumerate(sorted((tmp_path / "b").glob("*.tif"))):
+        p.rename(tmp_path / "t" / f"b_{i:03d}.tif")
+    with pytest.raises(TileSetError, match=r"match at an overlap only for a few tiles: 10 px \(\d+ of \d+ sampled"):
+        find_overlap(read_tileset(tmp_path / "t"), seed=1)
