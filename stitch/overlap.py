@@ -169,28 +169,44 @@ def _box(a):
     return ((c[:, SMOOTH_PX:] - c[:, :-SMOOTH_PX]) / SMOOTH_PX).astype(np.float32)
 
 
-def _partners(tileset, mean, scale):
+def _copies(tileset):
+    """Per tile, an id shared with the tiles whose edges are identical to its
+    own (:meth:`stitch.tiles.TileSet.duplicate_groups`): a copy's edge
+    matches exactly, but is no overlap."""
+    ids = np.arange(len(tileset))
+    index = {name: i for i, name in enumerate(tileset.names)}
+    for group in tileset.duplicate_groups():
+        members = [index[name] for name in group]
+        ids[members] = members[0]
+    return ids
+
+
+def _partners(tileset, mean, scale, copies):
     """Boundary lines of every side of every tile, both directions, grouped by
-    line length: ``{length: (lines (m, length), weights (m, length), tile of
-    each line)}`` (see :func:`_grey_lines`); blank tiles left out."""
+    line length: ``{length: (lines (m, length), weights (m, length), copy id
+    of each line's tile, the lines one step inside (m, length))}`` (see
+    :func:`_grey_lines`, :func:`_copies`); blank tiles left out."""
     out = {}
     keep = np.flatnonzero(~tileset.blank)
     for s in range(4):
-        x = (tileset.edges.sides[s][keep, :, 1, :].astype(np.float32) - mean) * scale
-        lines, weights = _grey_lines(x, tileset.edges.valid[s][keep, :, 1])
-        parts = out.setdefault(lines.shape[1], ([], [], []))
-        for a, b in ((lines, weights), (lines[:, ::-1], weights[:, ::-1])):
+        x = (tileset.edges.sides[s][keep].astype(np.float32) - mean) * scale
+        lines, weights = _grey_lines(x[:, :, 1], tileset.edges.valid[s][keep, :, 1])
+        inner, _ = _grey_lines(x[:, :, 0], tileset.edges.valid[s][keep, :, 0])
+        parts = out.setdefault(lines.shape[1], ([], [], [], []))
+        for a, b, c in ((lines, weights, inner), (lines[:, ::-1], weights[:, ::-1], inner[:, ::-1])):
             parts[0].append(np.ascontiguousarray(a))
             parts[1].append(np.ascontiguousarray(b))
-            parts[2].append(keep)
-    return {k: (np.concatenate(a), np.concatenate(b), np.concatenate(c)) for k, (a, b, c) in out.items()}
+            parts[2].append(copies[keep])
+            parts[3].append(np.ascontiguousarray(c))
+    return {k: tuple(np.concatenate(p) for p in parts) for k, parts in out.items()}
 
 
 def _best_distances(queries, q_weights, q_tiles, partners):
     """Mean squared difference of each query line to its closest partner line
-    of another tile (shared valid pixels only; inf with fewer than a quarter
-    of the query's valid pixels shared)."""
-    lines, weights, tiles = partners
+    of another tile that is not a copy of it (shared valid pixels only; inf
+    with fewer than a quarter of the query's valid pixels shared), and which
+    partner line that is."""
+    lines, weights, tiles = partners[:3]
     masked = not (weights.all() and q_weights.all())
     q = queries * q_weights
     if masked:
@@ -203,7 +219,8 @@ def _best_distances(queries, q_weights, q_tiles, partners):
     with np.errstate(divide="ignore", invalid="ignore"):
         d = np.maximum(num, 0.0) / cnt
     d[(cnt < np.maximum(need, 1.0)) | (tiles[None, :] == q_tiles[:, None])] = np.inf
-    return d.min(axis=1)
+    which = d.argmin(axis=1)
+    return d[np.arange(len(d)), which], which
 
 
 def find_overlap(tileset, *, given=None, seed=0):
@@ -242,14 +259,15 @@ def find_overlap(tileset, *, given=None, seed=0):
         return OverlapFinding(0, "none")
     mean, scale = band_scaling(tileset.edges.sides, tileset.edges.valid)
     mean, scale = mean.astype(np.float32), scale.astype(np.float32)
-    partners = _partners(tileset, mean, scale)
+    copies = _copies(tileset)
+    partners = _partners(tileset, mean, scale, copies)
     dtype = tileset.edges.sides[0].dtype
     # Per sampled side: best-partner distance at each depth, and how much
     # the tile's own lines at that depth and the next differ.
     # One depth beyond the deepest overlap, so that a dip there has a
     # neighbour on both sides.
     probed = min(depth + 1, min(tileset.width, tileset.height) - 1)
-    best, own = [], []
+    best, own, mirror = [], [], []
     for i in sample:
         pixels, mask = read_masked(tileset.folder / tileset.names[i], tileset.nodata, dtype)
         if pixels.shape[1:] != (tileset.height, tileset.width):
@@ -257,17 +275,23 @@ def find_overlap(tileset, *, given=None, seed=0):
         lines, valid = _deep_lines(pixels, mask, probed + 1)
         for s in range(4):
             g, w = _grey_lines((lines[s].astype(np.float32) - mean) * scale, valid[s])
-            best.append(_best_distances(g[:probed], w[:probed], np.full(probed, i), partners[g.shape[1]]))
+            pool = partners[g.shape[1]]
+            d, which = _best_distances(g[:probed], w[:probed], np.full(probed, copies[i]), pool)
+            best.append(d)
             both = w[:probed] * w[1:probed + 1]
             with np.errstate(divide="ignore", invalid="ignore"):
                 step = (((g[:probed] - g[1:probed + 1]) ** 2) * both).sum(1) / both.sum(1)
             own.append(np.nan_to_num(step, nan=0.0))
+            # A 1 px overlap shares the edge line, and beyond it each tile
+            # holds other ground; a mirrored copy holds the same beyond it too.
+            inner = pool[3][which[0]]
+            mirror.append(np.mean((g[1] - inner) ** 2) <= EXACT_SHARE * max(own[-1][0], 1e-12))
     best, own = np.array(best), np.array(own)  # (sides, probed): index d is overlap d + 1
-    votes, sides = _votes(best, own, depth)
+    votes, sides = _votes(best, own, depth, np.array(mirror))
     return _decide(votes, sides, tileset)
 
 
-def _votes(best, own, limit):
+def _votes(best, own, limit, mirror):
     """Each sampled side's vote (an overlap of 1 to ``limit`` pixels), and how
     many sides could vote.
 
@@ -277,7 +301,7 @@ def _votes(best, own, limit):
     neighbour on one side only, and tiles that meet edge to edge dip there
     too (the next tile's edge continues this one's), so it also needs a
     near-exact copy: at most :data:`EXACT_SHARE` of how much the tile's own
-    first two lines differ.
+    first two lines differ, whose next lines (``mirror``) are not a copy too.
     """
     finite = np.where(np.isfinite(best), best, np.inf)
     structured = (own > 0).any(axis=1) & np.isfinite(best).any(axis=1)
@@ -288,7 +312,7 @@ def _votes(best, own, limit):
     inside = d_star + 1 < best.shape[1]
     after = np.where(inside, finite[rows, np.minimum(d_star + 1, best.shape[1] - 1)], np.inf)
     vote = structured & np.isfinite(low) & (low <= DIP_RATIO * np.minimum(before, after))
-    vote &= np.where(d_star > 0, inside, low <= EXACT_SHARE * own[:, 0])
+    vote &= np.where(d_star > 0, inside, (low <= EXACT_SHARE * own[:, 0]) & ~mirror)
     counts = {}
     for d in d_star[vote]:
         counts[int(d) + 1] = counts.get(int(d) + 1, 0) + 1

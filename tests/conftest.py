@@ -73,3 +73,27 @@ def tiles_dir(tmp_path, utm_raster):
     cut_raster(utm_raster, out, 28, shuffle=True, strip_georef=True, keep_georef=1, seed=5,
                key_path=tmp_path / "key.csv")
     return out
+
+
+@pytest.fixture(autouse=True)
+def _edge_to_edge_sets_have_no_overlap(request, monkeypatch):
+    """Every tile set the other tests cut meets edge to edge: the overlap
+    search (run by every solve and inspect) must find none in any of them."""
+    if request.module.__name__.endswith("test_overlap"):
+        yield
+        return
+    import stitch.pipeline
+    import stitch.preflight
+
+    real, found = stitch.pipeline.find_overlap, []
+
+    def recorded(*args, **kwargs):
+        finding = real(*args, **kwargs)
+        found.append(finding)
+        return finding
+
+    monkeypatch.setattr(stitch.pipeline, "find_overlap", recorded)
+    monkeypatch.setattr(stitch.preflight, "find_overlap", recorded)
+    yield
+    wrong = [f.describe() for f in found if f.overlap and f.source == "found"]
+    assert not wrong, f"an overlap was found in tiles cut edge to edge: {wrong}"
