@@ -198,3 +198,135 @@ def test_control_point_on_unknown_tile(tmp_path, tiles_dir):
     opts = SolveOptions(georef=GeorefSpec(gcps=str(f), crs="EPSG:32630"))
     with pytest.raises(GeoreferenceError, match="names tile 'nope.tif', which is not in the tile folder"):
         solve(tiles_dir, tmp_path / "m.tif", options=opts)
+
+
+# Direct checks of fit_control, on a 2 x 3 grid of 32 px upright tiles, so
+# that each number the fit reports is compared with one computed here
+# independently (numpy least squares, the documented outlier rule).
+
+def _grid_placement():
+    names = tuple("abcdef")
+    return Placement(names, (2, 3), [0, 0, 0, 1, 1, 1], [0, 1, 2, 0, 1, 2], [0] * 6, [False] * 6)
+
+
+def _points(transform, spots, noise=None):
+    """Control points at (tile, col, row) with map coordinates from ``transform``
+    plus ``noise`` (map units, one (dx, dy) per point)."""
+    from stitch.control import ControlPoint
+
+    p = _grid_placement()
+    index = {n: i for i, n in enumerate(p.names)}
+    out = []
+    for k, (tile, col, row) in enumerate(spots):
+        i = index[tile]
+        x, y = transform * (p.cols[i] * 32 + col, p.rows[i] * 32 + row)
+        dx, dy = (0.0, 0.0) if noise is None else noise[k]
+        out.append(ControlPoint(tile, col, row, x + dx, y + dy))
+    return out
+
+
+SPOTS = [("a", 2.5, 3.5), ("c", 30.0, 4.0), ("d", 5.0, 28.0), ("f", 29.5, 30.5), ("b", 16.0, 16.0),
+         ("e", 8.0, 12.0)]
+
+
+def test_fit_control_is_affine_unless_asked():
+    """The 6-parameter affine (EPSG method 9624) by default; the
+    4-parameter similarity (EPSG method 9621) when asked or with two points."""
+    from stitch.control import fit_control
+
+    t = Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0)
+    p = _grid_placement()
+    assert fit_control(_points(t, SPOTS[:4]), p, 32, 32).method == "affine (EPSG:9624)"
+    assert fit_control(_points(t, SPOTS[:4]), p, 32, 32, similarity=True).method == "similarity (EPSG:9621)"
+    assert fit_control(_points(t, SPOTS[:2]), p, 32, 32).method == "similarity (EPSG:9621)"
+
+
+@pytest.mark.parametrize("n", [2, 4])
+def test_a_turned_similarity_is_given_back(n):
+    """Exact points of a similarity turned 30 degrees with 0.5 m pixels
+    (affine's Affine.rotation and Affine.scale build it; rows run down, map
+    y up) give that transform back, from two points or four."""
+    from stitch.control import fit_control
+
+    t = Affine.translation(431000.0, 5800000.0) * Affine.rotation(30) * Affine.scale(0.5, -0.5)
+    fit = fit_control(_points(t, SPOTS[:n]), _grid_placement(), 32, 32, similarity=True)
+    assert fit.transform.almost_equals(t, precision=1e-6)
+    assert fit.rmse_px < 1e-6
+
+
+def test_residuals_and_rmse_match_an_independent_least_squares_fit():
+    """Six noisy points, 0.5 m pixels: residuals (given minus fitted, per
+    point), their lengths in map units and in pixels (map units over the
+    pixel size, the root of the determinant's magnitude) and both RMSEs
+    equal those of numpy's least squares on the same design."""
+    from stitch.control import fit_control, mosaic_point
+
+    t = Affine(0.5, 0.02, 431000.0, -0.01, -0.5, 5800000.0)
+    noise = [(0.3, -0.1), (-0.2, 0.25), (0.05, 0.4), (-0.35, -0.2), (0.1, 0.0), (0.0, -0.3)]
+    points = _points(t, SPOTS, noise)
+    fit = fit_control(points, _grid_placement(), 32, 32)
+    p = _grid_placement()
+    src = np.array([mosaic_point(p, p.names.index(q.tile), q.col, q.row, 32, 32) for q in points])
+    dst = np.array([(q.x, q.y) for q in points])
+    design = np.column_stack([np.ones(len(src)), src])
+    coef = np.linalg.lstsq(design, dst, rcond=None)[0]
+    res = dst - design @ coef
+    a1, b1 = coef[1]
+    a2, b2 = coef[2]
+    pixel = np.sqrt(abs(a1 * b2 - a2 * b1))
+    np.testing.assert_allclose(fit.residuals_xy, res, atol=1e-6)
+    np.testing.assert_allclose(fit.residuals_map, np.hypot(*res.T), atol=1e-6)
+    np.testing.assert_allclose(fit.residuals_px, np.hypot(*res.T) / pixel, atol=1e-5)
+    assert fit.rmse_map == pytest.approx(np.sqrt(np.mean(np.sum(res**2, axis=1))), abs=1e-6)
+    assert fit.rmse_px == pytest.approx(np.sqrt(np.mean(np.sum(res**2, axis=1))) / pixel, abs=1e-5)
+
+
+def test_outliers_follow_the_documented_rule():
+    """Random noisy sets with one gross error of random size: the points
+    flagged are exactly those whose residual exceeds three times the RMSE of
+    the other points and 0.01 px (the rule in stitch.control's notes),
+    recomputed here from the fit's own residuals (in the three-point sets,
+    the fewest compared, no residual gets that far)."""
+    from stitch.control import fit_control
+
+    t = Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0)
+    rng = np.random.default_rng(3)
+    flagged_any = 0
+    for trial in range(120):
+        n = 3 if trial % 3 == 0 else 6
+        noise = rng.normal(0, 10 ** rng.uniform(-3.5, -1), (n, 2))
+        noise[rng.integers(n)] += rng.normal(0, 10 ** rng.uniform(-2.5, 0.5), 2)
+        fit = fit_control(_points(t, SPOTS[:n], noise), _grid_placement(), 32, 32, similarity=n == 3)
+        sq = fit.residuals_map**2
+        expected = tuple(i for i in range(n)
+                         if fit.residuals_map[i] > 3 * np.sqrt((sq.sum() - sq[i]) / (n - 1))
+                         and fit.residuals_px[i] > 0.01)
+        assert fit.outliers == expected
+        flagged_any += bool(expected)
+    assert flagged_any > 20
+
+
+def test_a_mirrored_fit_is_refused_whatever_the_pixel_size():
+    """x and y given swapped make the determinant positive: refused also
+    with 0.1 m pixels (a determinant far below 1)."""
+    from stitch.control import ControlPoint, fit_control
+
+    t = Affine(0.1, 0.0, 431000.0, 0.0, -0.1, 5800000.0)
+    swapped = [ControlPoint(q.tile, q.col, q.row, q.y, q.x) for q in _points(t, SPOTS[:4])]
+    with pytest.raises(GeoreferenceError, match="give a mirrored mosaic"):
+        fit_control(swapped, _grid_placement(), 32, 32)
+
+
+def test_points_that_collapse_onto_one_map_position_are_refused():
+    from stitch.control import ControlPoint, fit_control
+
+    same = [ControlPoint(tile, col, row, 431000.0, 5800000.0) for tile, col, row in SPOTS[:4]]
+    with pytest.raises(GeoreferenceError, match="they sit at one map position"):
+        fit_control(same, _grid_placement(), 32, 32)
+
+
+def test_a_similarity_needs_two_distinct_points():
+    with pytest.raises(GeoreferenceError, match="at least 2 distinct control points"):
+        fit_similarity([(1.0, 2.0)], [(10.0, 20.0)])
+    with pytest.raises(GeoreferenceError, match="at least 2 distinct control points"):
+        fit_similarity([(1.0, 2.0), (1.0, 2.0)], [(10.0, 20.0), (11.0, 21.0)])

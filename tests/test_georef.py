@@ -398,3 +398,194 @@ def test_the_override_warning_says_how_far_the_anchors_are_moved(tmp_path, tiles
             origin=(431010.0, 5800005.0), pixel_size=(0.5, 0.5), crs="EPSG:32630")))
     assert ("overrides anchor tile tile_0036.tif: it moves the mosaic's upper-left corner by +10, +5 metres "
             "(22.4 px of theirs), with pixels of 0.5 x 0.5 against their 0.5 x 0.5") in caplog.text
+
+
+@pytest.mark.parametrize("spec, refused", [
+    # Projected CRS (EPSG:32630, metres): lon/lat ranges are inclusive, the
+    # span must be under one unit.
+    (dict(bounds=(179.5, 89.2, 180.0, 90.0)), True),
+    (dict(bounds=(180.2, 89.0, 180.6, 89.5)), False),
+    (dict(bounds=(100.0, 90.1, 100.5, 90.5)), False),
+    (dict(bounds=(100.0, 110.0, 100.5, 110.5)), False),
+    (dict(bounds=(100.0, 10.0, 100.5, 10.2)), True),
+    (dict(bounds=(-4.0, 52.0, -3.0, 52.5)), False),
+    (dict(bounds=(-4.0, 52.0, -2.5, 52.5)), False),
+    (dict(origin=(-4.01, 52.37), pixel_size=(0.00995, 0.00995)), True),
+    (dict(origin=(-4.01, 52.37), pixel_size=(0.0101, 0.0101)), False),
+    (dict(origin=(200.0, 50.0), pixel_size=(1e-5, 1e-5)), False),
+])
+def test_the_degree_check_of_a_projected_crs_at_its_limits(spec, refused):
+    """Where "looks like longitude and latitude" begins and ends (our rule,
+    no source: |x| <= 180, |y| <= 90, and the whole mosaic within one map
+    unit; for an origin, 100 pixels)."""
+    if refused:
+        with pytest.raises(OptionError, match="look like longitude and latitude"):
+            GeorefSpec(crs="EPSG:32630", **spec)
+    else:
+        GeorefSpec(crs="EPSG:32630", **spec)
+
+
+@pytest.mark.parametrize("bounds, refused", [
+    ((359.5, 0.0, 360.0, 1.0), False),
+    ((359.5, 0.0, 360.5, 1.0), True),
+    ((10.0, 89.0, 11.0, 90.0), False),
+    ((10.0, 89.0, 11.0, 90.5), True),
+    ((10.0, 100.0, 11.0, 120.0), True),
+])
+def test_the_degree_check_of_a_geographic_crs_at_its_limits(bounds, refused):
+    """EPSG:4326 takes |x| <= 360 (longitudes past the antimeridian) and
+    |y| <= 90 (our rule, no source)."""
+    if refused:
+        with pytest.raises(OptionError, match="are not longitude and latitude"):
+            GeorefSpec(bounds=bounds, crs="EPSG:4326")
+    else:
+        GeorefSpec(bounds=bounds, crs="EPSG:4326")
+
+
+def _anchored(cells, transforms, crss=None, names=None, shape=(3, 4), turns=None, mirrors=None):
+    """A placement of 32 px tiles and the tile set bits from_anchors reads."""
+    from types import SimpleNamespace
+
+    from rasterio.crs import CRS
+
+    from stitch.layout import Placement
+    from stitch.tiles import TileGeoref
+
+    n = len(cells)
+    names = names or tuple(f"t{i}.tif" for i in range(n))
+    crss = crss or ["EPSG:32630"] * n
+    p = Placement(names, shape, [r for r, _ in cells], [c for _, c in cells], turns or [0] * n,
+                  mirrors or [False] * n)
+    georefs = tuple(None if t is None else TileGeoref(t, None if c is None else CRS.from_string(c), "GeoTIFF tags")
+                    for t, c in zip(transforms, crss))
+    ts = SimpleNamespace(georefs=georefs, names=names, width=32, height=32, step=(32, 32))
+    return p, ts
+
+
+def _tile_at(row, col, origin=(431000.0, 5800000.0), pixel=0.5):
+    """The transform of the tile in cell (row, col) of a north-up grid
+    (affine's convention: a pixel corner's map position)."""
+    return Affine(pixel, 0.0, origin[0] + col * 32 * pixel, 0.0, -pixel, origin[1] - row * 32 * pixel)
+
+
+def test_an_anchor_in_the_first_row_or_column_places_the_mosaic():
+    from stitch.georef import from_anchors
+
+    p, ts = _anchored([(0, 2), (1, 0)], [_tile_at(0, 2), None])
+    g = from_anchors(p, ts)
+    assert g.transform == _tile_at(0, 0) and g.source == "anchor tile t0.tif"
+    p, ts = _anchored([(1, 3), (2, 0)], [None, _tile_at(2, 0)])
+    assert from_anchors(p, ts).transform == _tile_at(0, 0)
+
+
+@pytest.mark.parametrize("turn, mirror, said", [(1, False, "turned 90 degrees; "),
+                                                (0, True, "turned 0 degrees and mirrored; "),
+                                                (2, True, "turned 180 degrees and mirrored; ")])
+def test_a_turned_or_mirrored_anchor_is_refused(turn, mirror, said):
+    from stitch.georef import from_anchors
+
+    p, ts = _anchored([(0, 0), (1, 1)], [None, _tile_at(1, 1)], turns=[0, turn], mirrors=[False, mirror])
+    with pytest.raises(GeoreferenceError) as err:
+        from_anchors(p, ts)
+    assert str(err.value) == ("anchor tile 't1.tif' keeps its georeferencing but was placed " + said
+                              + "pin it or solve with --rotations 0")
+
+
+def test_anchors_that_disagree_in_the_placement_are_named_with_the_distance():
+    """The second of three anchors sits one cell off where its coordinates
+    put it: refused, with both names and how far apart they put the mosaic."""
+    from stitch.georef import from_anchors
+
+    p, ts = _anchored([(0, 0), (1, 1), (2, 2)], [_tile_at(0, 0), _tile_at(1, 2), _tile_at(2, 2)])
+    with pytest.raises(GeoreferenceError) as err:
+        from_anchors(p, ts)
+    assert str(err.value) == ("anchor tiles 't0.tif' and 't1.tif' disagree by 16.000 map units (32.00 px) given "
+                              "their cells in the placement; their georeferencing or the placement is wrong; "
+                              "pin them or drop one")
+
+
+def test_anchors_that_agree_at_one_corner_only_are_refused():
+    """Both put the mosaic's corner at one point, but with pixels of 0.5 and
+    0.501 m: at the far corner of a 4 x 3 grid of 32 px tiles (128 x 96 px)
+    they differ by hypot(0.128, 0.096) = 0.16 m (0.32 px), over the
+    quarter-pixel tolerance."""
+    from stitch.georef import from_anchors
+
+    p, ts = _anchored([(0, 0), (0, 1)], [_tile_at(0, 0), _tile_at(0, 1, pixel=0.501)], shape=(3, 4))
+    with pytest.raises(GeoreferenceError, match=r"disagree by 0\.160 map units \(0\.32 px\)"):
+        from_anchors(p, ts)
+
+
+def test_anchors_in_two_crss_are_named():
+    from stitch.georef import from_anchors
+
+    p, ts = _anchored([(0, 0), (1, 1)], [_tile_at(0, 0), _tile_at(1, 1)], crss=["EPSG:32630", "EPSG:32631"])
+    with pytest.raises(GeoreferenceError, match=r"anchor tiles 't0.tif' and 't1.tif' are in different CRSs"):
+        from_anchors(p, ts)
+    p, ts = _anchored([(0, 0), (1, 1)], [_tile_at(0, 0), _tile_at(1, 1)], crss=["EPSG:32630", None])
+    with pytest.raises(GeoreferenceError, match="are in different CRSs"):
+        from_anchors(p, ts)
+
+
+@pytest.mark.parametrize("n, source", [(3, "anchor tiles t0.tif, t1.tif, t2.tif"),
+                                       (4, "anchor tiles t0.tif, t1.tif, t2.tif ...")])
+def test_the_anchor_source_names_three_tiles_at_most(n, source):
+    from stitch.georef import from_anchors
+
+    cells = [(0, 0), (0, 1), (1, 0), (1, 1)][:n]
+    p, ts = _anchored(cells, [_tile_at(r, c) for r, c in cells])
+    assert from_anchors(p, ts).source == source
+
+
+def test_anchor_cells_refuse_other_crss_and_pixel_sizes():
+    """anchor_cells, before any search: CRSs must match (a missing one is
+    another), and pixel sizes must agree to a millionth."""
+    from stitch.georef import anchor_cells
+
+    _, ts = _anchored([(0, 0), (1, 1)], [_tile_at(0, 0), _tile_at(1, 1)], crss=["EPSG:32630", None])
+    with pytest.raises(GeoreferenceError, match="are in different CRSs"):
+        anchor_cells(ts)
+    _, ts = _anchored([(0, 0), (1, 1)], [_tile_at(0, 0), _tile_at(1, 1)], crss=["EPSG:32630", "EPSG:32631"])
+    with pytest.raises(GeoreferenceError, match="are in different CRSs"):
+        anchor_cells(ts)
+    for pixel in (0.6, 0.50001):
+        _, ts = _anchored([(0, 0), (1, 1)], [_tile_at(0, 0), _tile_at(1, 1, pixel=pixel)])
+        with pytest.raises(GeoreferenceError, match="have different pixel sizes"):
+            anchor_cells(ts)
+    _, ts = _anchored([(0, 0), (1, 1)], [_tile_at(0, 0), _tile_at(1, 1, pixel=0.5000001)])
+    assert [(r, c) for _, r, c in anchor_cells(ts)] == [(0, 0), (1, 1)]
+
+
+def test_map_units_by_the_crs():
+    """Units as PROJ names them (EPSG dataset): metres for UTM 30N, degrees
+    for WGS 84, US survey feet for NAD83 / New York Long Island (EPSG:2263)."""
+    from rasterio.crs import CRS
+
+    from stitch.georef import map_units
+
+    assert map_units(None) == "map units"
+    assert map_units(CRS.from_epsg(32630)) == "metres"
+    assert map_units(CRS.from_epsg(4326)) == "degrees"
+    assert map_units(CRS.from_epsg(2263)) == "US survey feet"
+
+
+def test_prj_text_falls_back_to_gdal_wkt_for_a_crs_esri_cannot_hold():
+    """A CRS the ESRI dialect cannot express (stood in for by one whose ESRI
+    export fails, as PROJ's does for such CRSs) is written in GDAL's own
+    WKT, ending in a newline, and reads back as the same CRS."""
+    from rasterio.crs import CRS
+    from rasterio.errors import CRSError
+
+    from stitch.georef import prj_text
+
+    crs = CRS.from_epsg(32630)
+
+    class NoEsri:
+        def to_wkt(self, version=None):
+            if version is not None:
+                raise CRSError("no ESRI form")
+            return crs.to_wkt()
+
+    text = prj_text(NoEsri())
+    assert text == crs.to_wkt() + "\n"
+    assert CRS.from_wkt(text) == crs
