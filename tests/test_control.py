@@ -330,3 +330,43 @@ def test_a_similarity_needs_two_distinct_points():
         fit_similarity([(1.0, 2.0)], [(10.0, 20.0)])
     with pytest.raises(GeoreferenceError, match="at least 2 distinct control points"):
         fit_similarity([(1.0, 2.0), (1.0, 2.0)], [(10.0, 20.0), (11.0, 21.0)])
+
+
+@pytest.mark.parametrize("t", [Affine(0.5, 0.1, 431000.0, 0.0, -0.5, 5800000.0),
+                               Affine(0.5, 0.0, 431000.0, 0.1, -0.5, 5800000.0),
+                               Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0)])
+def test_an_exact_affine_comes_back_with_its_shear_and_north_up_stays_north_up(t):
+    """Rotation terms are zeroed only when both are a billion times below
+    the pixel size (least-squares rounding): a shear in one term alone is
+    kept, and exact north-up points give b = d = 0.0 exactly."""
+    from stitch.control import fit_control
+
+    fit = fit_control(_points(t, SPOTS), _grid_placement(), 32, 32)
+    assert fit.transform.almost_equals(t, precision=1e-7)
+    if t.b == 0.0 and t.d == 0.0:
+        assert fit.transform.b == 0.0 and fit.transform.d == 0.0
+
+
+def test_a_point_on_a_tile_not_placed_or_unknown_is_refused():
+    from stitch.control import ControlPoint, fit_control
+
+    t = Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0)
+    p = _grid_placement()
+    unplaced = Placement(p.names, p.shape, [0, 0, 0, 1, 1, -1], [0, 1, 2, 0, 1, -1], [0] * 6, [False] * 6)
+    points = _points(t, SPOTS[:4])
+    with pytest.raises(GeoreferenceError, match="names tile 'f', which is not placed"):
+        fit_control(points, unplaced, 32, 32)
+    with pytest.raises(GeoreferenceError, match="names tile 'zz', which is not placed"):
+        fit_control(points + [ControlPoint("zz", 1.0, 1.0, 431000.0, 5800000.0)], p, 32, 32)
+
+
+def test_contradicting_points_name_the_worst_one():
+    """One point 80 m (160 px) off on 32 px tiles: the RMSE passes a tile,
+    the fit is refused and the message numbers that point as in the file
+    (from 1) with its tile."""
+    from stitch.control import fit_control
+
+    t = Affine(0.5, 0.0, 431000.0, 0.0, -0.5, 5800000.0)
+    noise = [(0.0, 0.0)] * 4 + [(80.0, 24.0), (0.0, 0.0)]
+    with pytest.raises(GeoreferenceError, match=r"RMSE 53.9 px, more than a tile \(32 px\); point 5 \(b\) is 116 px off"):
+        fit_control(_points(t, SPOTS, noise), _grid_placement(), 32, 32)

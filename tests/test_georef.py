@@ -527,7 +527,8 @@ def test_anchors_in_two_crss_are_named():
         from_anchors(p, ts)
 
 
-@pytest.mark.parametrize("n, source", [(3, "anchor tiles t0.tif, t1.tif, t2.tif"),
+@pytest.mark.parametrize("n, source", [(1, "anchor tile t0.tif"), (2, "anchor tiles t0.tif, t1.tif"),
+                                       (3, "anchor tiles t0.tif, t1.tif, t2.tif"),
                                        (4, "anchor tiles t0.tif, t1.tif, t2.tif ...")])
 def test_the_anchor_source_names_three_tiles_at_most(n, source):
     from stitch.georef import from_anchors
