@@ -39,7 +39,8 @@ in the tests:
     python bench/mutation.py --modules mosaic puzzles   # only these modules
 
 Each surviving mutant runs every test that reaches its function, so the run
-is long: puzzles and layout took 75 minutes on 2 cores, and mosaic's
+is long: puzzles and layout took 75 minutes on 2 cores, georef and control
+60 minutes (672 mutants, sharing the machine with other work), and mosaic's
 functions are reached by every solve test (several hours for all five).
 """
 
