@@ -373,5 +373,5 @@ def overlap_strips(tileset, overlap, *, offsets=None, progress=None):
             valid[s][i] = ok
         if progress is not None:
             progress("read", i + 1, n)
-    return EdgeStrips(sides=tuple(sides), valid=tuple(valid))
+    return EdgeStrips(sides=tuple(sides), valid=tuple(valid), shared=True)
 

@@ -21,7 +21,7 @@ from __future__ import annotations
 import numpy as np
 
 from .errors import OptionError
-from .measures import get_measure
+from .measures import get_measure, overlap
 from .seams import band_scaling, seam_block, side_pairs, usable_rows
 from .tiles import EdgeStrips, edge_strips, pad_to_cell, partial_sizes, read_masked
 
@@ -57,7 +57,7 @@ def _default_outer(tileset):
     return outer
 
 
-def partial_edges(tileset, orientations, *, edges=None, measure=None):
+def partial_edges(tileset, orientations, *, edges=None):
     """Edge strips with partial tiles cut for the allowed orientations.
 
     Parameters
@@ -67,11 +67,9 @@ def partial_edges(tileset, orientations, *, edges=None, measure=None):
         Allowed orientation codes.
     edges : stitch.tiles.EdgeStrips, optional
         The strips to start from and to cut again, by default
-        ``tileset.edges``; for tiles that overlap, their overlap strips
-        (:func:`stitch.overlap.overlap_strips`), as deep as the overlap.
-    measure : callable, optional
-        What tells inner from outer sides on those strips: by default MGC,
-        :func:`stitch.measures.overlap` for overlap strips.
+        ``tileset.edges``; for tiles that overlap, their shared strips
+        (:func:`stitch.overlap.overlap_strips`), as deep as the overlap,
+        told apart with :func:`stitch.measures.overlap` instead of MGC.
 
     Returns
     -------
@@ -103,7 +101,7 @@ def partial_edges(tileset, orientations, *, edges=None, measure=None):
     for i in part:
         pixels, mask = read_masked(tileset.folder / tileset.names[i], tileset.nodata, dtype)
         raw[int(i)] = (pixels, mask, *edge_strips(pixels, mask, depth))
-    ratio = _distinctiveness(tileset, edges, raw, orientations, measure or get_measure(_MEASURE))
+    ratio = _distinctiveness(tileset, edges, raw, orientations, overlap if edges.shared else get_measure(_MEASURE))
     w, h = tileset.sizes[:, 0], tileset.sizes[:, 1]
     for i in part:
         if w[i] < tileset.width:
@@ -123,7 +121,7 @@ def partial_edges(tileset, orientations, *, edges=None, measure=None):
         for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask, depth))):
             sides[s][i] = strip
             valid[s][i] = ok
-    return EdgeStrips(sides=tuple(sides), valid=tuple(valid)), outer
+    return EdgeStrips(sides=tuple(sides), valid=tuple(valid), shared=edges.shared), outer
 
 
 def _distinctiveness(tileset, edges, raw, orientations, fn):
@@ -148,12 +146,12 @@ def _distinctiveness(tileset, edges, raw, orientations, fn):
     for s in range(4):
         ok = edges.valid[s][full]
         strips = normalized(edges.sides[s][full], ok)
-        pool.setdefault((s, strips.shape[1]), []).append((full, strips, usable_rows(ok)))
+        pool.setdefault((s, strips.shape[1]), []).append((full, strips, usable_rows(ok, edges.shared)))
     for i, (_, _, strips, oks) in raw.items():
         for s in range(4):
             ok = oks[s]
             pool.setdefault((s, strips[s].shape[0]), []).append(
-                (np.array([i]), normalized(strips[s], ok)[None], usable_rows(ok)[None]))
+                (np.array([i]), normalized(strips[s], ok)[None], usable_rows(ok, edges.shared)[None]))
     pool = {key: (np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts]),
                   np.concatenate([p[2] for p in parts])) for key, parts in pool.items()}
 
@@ -165,7 +163,7 @@ def _distinctiveness(tileset, edges, raw, orientations, fn):
         for s in cut:
             ok = oks[s]
             queries.setdefault((s, strips[s].shape[0]), []).append(
-                (i, normalized(strips[s], ok), usable_rows(ok)))
+                (i, normalized(strips[s], ok), usable_rows(ok, edges.shared)))
     pairs = side_pairs(orientations)
     out = {}
     for (a, length), group in queries.items():

@@ -362,10 +362,8 @@ def place_tiles(tileset, options=None, *, progress=None):
                               f"{tileset.overlap} px and are placed by their shared strips; drop --seam, or give "
                               "--overlap 0 if they do not overlap")
         measure = overlap_measure
-        edges, outer = partial_edges(tileset, orientations, edges=overlap_strips(tileset, tileset.overlap),
-                                     measure=measure)
-    else:
-        edges, outer = partial_edges(tileset, orientations)
+    shared = overlap_strips(tileset, tileset.overlap) if tileset.overlap else None
+    edges, outer = partial_edges(tileset, orientations, edges=shared)
     table = score_seams(edges, orientations=orientations, measure=measure, k=options.candidates,
                         blank=tileset.blank, progress=progress)
     pins = _pins(tileset, options)

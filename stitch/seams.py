@@ -150,24 +150,25 @@ def keeps_dense(n_tiles, blocks):
     return blocks * n_tiles * n_tiles * 4 <= DENSE_LIMIT_BYTES
 
 
-def usable_rows(valid):
+def usable_rows(valid, shared=False):
     """Rows of strips usable by a measure, from pixel validity ``(..., length,
-    depth)``: inner and boundary pixel both valid; for the deeper strips of
-    overlapping tiles, any pixel valid (every pixel counts as it is, nodata
-    at the band mean, so a partner must have nodata there too: a nodata
-    column at a raster's edge falls inside the shared strip)."""
-    if valid.shape[-1] > 2:
+    depth)``: inner and boundary pixel both valid; for the ``shared`` strips
+    of overlapping tiles (:class:`stitch.tiles.EdgeStrips`), any pixel valid
+    (every pixel counts as it is, nodata at the band mean, so a partner must
+    have nodata there too: a nodata column at a raster's edge falls inside
+    the shared strip)."""
+    if shared:
         return valid.any(axis=-1)
     return valid[..., 0] & valid[..., -1]
 
 
-def footprint_rows(valid):
+def footprint_rows(valid, shared=False):
     """Per row, what the footprint rule compares across a seam
-    (:func:`footprint_mismatch`): the boundary pixel's validity; for the
-    deeper strips of overlapping tiles, whether the whole row is valid, which
-    two true neighbours share because they hold the same pixels (their
-    boundary pixels are not the same pixel)."""
-    if valid.shape[-1] > 2:
+    (:func:`footprint_mismatch`): the boundary pixel's validity; for
+    ``shared`` strips, whether the whole row is valid, which two true
+    neighbours share because they hold the same pixels (their boundary
+    pixels are not the same pixel)."""
+    if shared:
         return valid.all(axis=-1)
     return valid[..., -1]
 
@@ -672,9 +673,9 @@ def score_seams(edges, *, orientations=(0,), measure=DEFAULT_MEASURE, k=16, blan
     fn = get_measure(measure) if isinstance(measure, str) else measure
     name = measure if isinstance(measure, str) else getattr(measure, "__name__", "custom")
     sides = normalize_strips(edges.sides, edges.valid)
-    rows_ok = [usable_rows(v) for v in edges.valid]
+    rows_ok = [usable_rows(v, edges.shared) for v in edges.valid]
     masked = not all(r.all() for r in rows_ok)
-    boundary_ok = [footprint_rows(v) for v in edges.valid]  # validity of each side's boundary pixels
+    boundary_ok = [footprint_rows(v, edges.shared) for v in edges.valid]  # what the footprint rule compares
     n = sides[0].shape[0]
     blank = np.zeros(n, bool) if blank is None else np.asarray(blank, bool)
     dead = np.stack([blank | (r.sum(axis=1) < 2) for r in rows_ok], axis=1)  # (n, 4)

@@ -155,13 +155,19 @@ def edge_strips(pixels, mask, depth=2):
 class EdgeStrips:
     """The edge strips of every tile, one array per side.
 
-    ``sides[s]`` has shape ``(n_tiles, length, 2, bands)``, the tiles' own
+    ``sides[s]`` has shape ``(n_tiles, length, depth, bands)``, the tiles' own
     integer type or float32, with the layout of :func:`side_strips`. ``valid[s]`` has shape
-    ``(n_tiles, length, 2)`` and is False where a pixel is nodata or masked.
+    ``(n_tiles, length, depth)`` and is False where a pixel is nodata or masked.
+    ``depth`` is 2, or the overlap for the strips tiles that overlap share
+    (``shared``, :func:`stitch.overlap.overlap_strips`): two true neighbours
+    then hold the same pixels, not two that continue each other, which
+    changes which rows a measure may use and what the footprint rule compares
+    (:func:`stitch.seams.usable_rows`, :func:`stitch.seams.footprint_rows`).
     """
 
     sides: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
     valid: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+    shared: bool = False
 
     @classmethod
     def from_pixels(cls, tiles, valid=None):

@@ -52,7 +52,7 @@ def _source_window(src_path, shape_px):
         return src.read(window=Window(0, 0, *shape_px)), src.transform
 
 
-@pytest.mark.parametrize("k", [0, 1, 5, 16])
+@pytest.mark.parametrize("k", [0, 1, 2, 5, 16])
 def test_an_unknown_overlap_is_found_and_the_mosaic_is_the_source(tmp_path, k):
     """Cut with k px of overlap, one tile keeping its coordinates: solve with
     no option finds k, places every tile, and writes the source window pixel
