@@ -32,9 +32,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import TileSetError
-from .orientation import orient
 from .seams import band_scaling
-from .tiles import EdgeStrips, edge_strips, pad_to_cell, read_masked
+from .tiles import cut_strips, edge_strips, pad_to_cell, read_masked
 
 __all__ = ["DIP_RATIO", "EXACT_SHARE", "OverlapFinding", "find_overlap", "overlap_strips"]
 
@@ -124,17 +123,12 @@ class OverlapFinding:
 
 
 def _deep_lines(pixels, mask, depth):
-    """Per side, the lines 0..depth-1 steps in from the edge: a list of four
-    ``(depth, length, bands)`` pixel arrays and four ``(depth, length)``
+    """Per side, the lines 0..depth-1 steps in from the edge (the strips of
+    :func:`stitch.tiles.edge_strips` read from the boundary in): a list of
+    four ``(depth, length, bands)`` pixel arrays and four ``(depth, length)``
     validity masks (True: valid)."""
-    lines, valid = [], []
-    for s in range(4):
-        turned = orient(pixels, (1 - s) % 4)
-        ok = orient(~mask[None], (1 - s) % 4)[0]
-        # Column -1 is the boundary (depth 0); column -1-d is depth d.
-        lines.append(np.moveaxis(turned[:, :, ::-1][:, :, :depth], 0, -1).transpose(1, 0, 2))
-        valid.append(ok[:, ::-1][:, :depth].T)
-    return lines, valid
+    strips, valid = edge_strips(pixels, mask, depth)
+    return [s[:, ::-1].transpose(1, 0, 2) for s in strips], [v[:, ::-1].T for v in valid]
 
 
 def _sample(tileset, rng):
@@ -349,29 +343,15 @@ def _decide(votes, sides, tileset):
     return OverlapFinding(0, "none", votes, sides)
 
 
-def overlap_strips(tileset, overlap, *, offsets=None, progress=None):
+def overlap_strips(tileset, overlap):
     """The ``overlap``-pixel strips of every side of every tile, as the seam
-    engine takes them (:class:`stitch.tiles.EdgeStrips` of depth ``overlap``:
-    index ``overlap - 1`` is the boundary pixel, index 0 the deepest).
+    engine takes them (:class:`stitch.tiles.EdgeStrips` of depth ``overlap``,
+    marked ``shared``: index ``overlap - 1`` is the boundary pixel, index 0
+    the deepest).
 
-    Partial edge tiles are cut from their full cell (the missing part
-    nodata), at ``offsets`` (per tile, as
-    :func:`stitch.partial.outer_offsets`; default upper left, as stored
-    upright; :func:`stitch.partial.partial_edges` moves turned ones).
+    Partial edge tiles are cut from their full cell at its upper left, as
+    stored upright; :func:`stitch.partial.partial_edges` moves turned ones.
     """
-    n, k = len(tileset), int(overlap)
-    dtype = tileset.edges.sides[0].dtype
-    sides = [np.empty((n, tileset.height if s % 2 else tileset.width, k, tileset.count), dtype) for s in range(4)]
-    valid = [np.ones((n, tileset.height if s % 2 else tileset.width, k), bool) for s in range(4)]
-    for i in range(n):
-        pixels, mask = read_masked(tileset.folder / tileset.names[i], tileset.nodata, dtype)
-        if pixels.shape[1:] != (tileset.height, tileset.width):
-            off = (0, 0) if offsets is None else tuple(int(v) for v in offsets[i])
-            pixels, mask = pad_to_cell(pixels, mask, tileset.width, tileset.height, off)
-        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask, k))):
-            sides[s][i] = strip
-            valid[s][i] = ok
-        if progress is not None:
-            progress("read", i + 1, n)
-    return EdgeStrips(sides=tuple(sides), valid=tuple(valid), shared=True)
-
+    edges, _ = cut_strips(tileset.paths, tileset.width, tileset.height, tileset.count, tileset.nodata,
+                          tileset.edges.sides[0].dtype, depth=int(overlap), shared=True)
+    return edges

@@ -39,6 +39,7 @@ __all__ = [
     "TileGeoref",
     "TileSet",
     "NOISE_LIKE",
+    "cut_strips",
     "edge_strips",
     "find_tiles",
     "noise_like",
@@ -578,23 +579,9 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         raise TileSetError(f"tiles in {str(folder)!r} are {width}x{height} px; at least 2x2 is needed")
     nodata = next((v for v in nodatas if v is not None), None)
 
-    n = len(paths)
     # Integer strips keep their type (exact in float32 later, and 4x smaller for 8-bit).
     strip_dtype = np.dtype(dtype) if np.dtype(dtype).kind in "iu" else np.dtype(np.float32)
-    sides = [np.empty((n, height if s % 2 else width, 2, count), strip_dtype) for s in range(4)]
-    valid = [np.ones((n, height if s % 2 else width, 2), bool) for s in range(4)]
-    blank = np.zeros(n, bool)
-    for i, path in enumerate(paths):
-        pixels, mask = read_masked(path, nodata, strip_dtype)
-        good = pixels[:, ~mask]
-        if pixels.shape[1:] != (height, width):
-            pixels, mask = pad_to_cell(pixels, mask, width, height)
-        blank[i] = good.size == 0 or bool(np.all(good.max(axis=1) == good.min(axis=1)))
-        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask))):
-            sides[s][i] = strip
-            valid[s][i] = ok
-        if progress is not None:
-            progress("read", i + 1, n)
+    edges, blank = cut_strips(paths, width, height, count, nodata, strip_dtype, progress=progress)
     if blank.any():
         log.info("%d blank tile(s) (constant or all nodata): %s", blank.sum(),
                  ", ".join(np.asarray(names)[blank][:5]))
@@ -607,12 +594,43 @@ def read_tileset(folder, *, recursive=False, exclude=(), progress=None, max_tile
         dtype=dtype,
         nodata=nodata,
         georefs=tuple(georefs),
-        edges=EdgeStrips(sides=tuple(sides), valid=tuple(valid)),
+        edges=edges,
         blank=blank,
         colorinterp=colorinterp,
         sizes=sizes,
         skipped=skipped,
     )
+
+
+def cut_strips(paths, width, height, count, nodata, dtype, *, depth=2, shared=False, progress=None):
+    """Read each tile and cut its edge strips, ``depth`` pixels deep.
+
+    Partial edge tiles are cut from a full ``width x height`` cell with the
+    missing part nodata, at its upper left (:func:`pad_to_cell`).
+
+    Returns
+    -------
+    edges : EdgeStrips
+        With the ``shared`` flag (strips that overlapping tiles share).
+    blank : ndarray of bool
+        Tiles that are constant or entirely nodata.
+    """
+    n = len(paths)
+    sides = [np.empty((n, height if s % 2 else width, depth, count), dtype) for s in range(4)]
+    valid = [np.ones((n, height if s % 2 else width, depth), bool) for s in range(4)]
+    blank = np.zeros(n, bool)
+    for i, path in enumerate(paths):
+        pixels, mask = read_masked(path, nodata, dtype)
+        good = pixels[:, ~mask]
+        if pixels.shape[1:] != (height, width):
+            pixels, mask = pad_to_cell(pixels, mask, width, height)
+        blank[i] = good.size == 0 or bool(np.all(good.max(axis=1) == good.min(axis=1)))
+        for s, (strip, ok) in enumerate(zip(*edge_strips(pixels, mask, depth))):
+            sides[s][i] = strip
+            valid[s][i] = ok
+        if progress is not None:
+            progress("read", i + 1, n)
+    return EdgeStrips(sides=tuple(sides), valid=tuple(valid), shared=shared), blank
 
 
 def noise_like(edges):
