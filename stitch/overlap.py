@@ -27,7 +27,7 @@ how badly their shared strips (:func:`overlap_strips`) disagree.
 from __future__ import annotations
 
 import logging
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -35,7 +35,7 @@ from .errors import TileSetError
 from .seams import band_scaling
 from .tiles import cut_strips, edge_strips, pad_to_cell, read_masked
 
-__all__ = ["DIP_RATIO", "EXACT_SHARE", "OverlapFinding", "find_overlap", "overlap_strips"]
+__all__ = ["DIP_RATIO", "EXACT_SHARE", "OverlapFinding", "find_overlap", "overlap_strips", "with_overlap"]
 
 log = logging.getLogger(__name__)
 
@@ -105,21 +105,21 @@ class OverlapFinding:
         return max(others, key=lambda k: (others[k], -k)) if others else None
 
     def describe(self):
-        """One line for the run's messages."""
+        """One line for the run's messages, the report page and ``inspect``."""
         if self.source == "given":
             return f"overlap {self.overlap} px (given)"
         second = self.runner_up()
-        other = (f"; next {second} px, {self.votes[second] / self.sides:.0%}" if second is not None and self.sides
-                 else "")
+        votes = f"{second} px, {self.votes[second] / self.sides:.0%}" if second is not None and self.sides else ""
         if self.overlap == 0:
-            return f"no overlap found ({self.sides} sampled sides{other.replace('; next', ', most votes')})"
-        return f"overlap {self.overlap} px found ({self.share:.0%} of {self.sides} sampled sides match exactly or nearly{other})"
+            return f"no overlap found ({self.sides} sampled sides" + (f", most votes {votes})" if votes else ")")
+        return (f"overlap {self.overlap} px found ({self.share:.0%} of {self.sides} sampled sides match exactly "
+                "or nearly" + (f"; next {votes})" if votes else ")"))
 
     def facts(self):
-        """As plain data, for the run summary."""
+        """As plain data, for the run summary and ``inspect --json``."""
         return {"pixels": int(self.overlap), "source": self.source, "sampled_sides": int(self.sides),
                 "votes": {str(k): int(v) for k, v in sorted(self.votes.items())},
-                "share": round(float(self.share), 4)}
+                "share": round(float(self.share), 4), "description": self.describe()}
 
 
 def _deep_lines(pixels, mask, depth):
@@ -215,6 +215,14 @@ def _best_distances(queries, q_weights, q_tiles, partners):
     d[(cnt < np.maximum(need, 1.0)) | (tiles[None, :] == q_tiles[:, None])] = np.inf
     which = d.argmin(axis=1)
     return d[np.arange(len(d)), which], which
+
+
+def with_overlap(tileset, *, given=None, seed=0):
+    """``tileset`` with the overlap :func:`find_overlap` finds (or ``given``)
+    set, so that its cells step by the tile size less the overlap, and the
+    finding."""
+    found = find_overlap(tileset, given=given, seed=seed)
+    return (replace(tileset, overlap=found.overlap) if found.overlap else tileset), found
 
 
 def find_overlap(tileset, *, given=None, seed=0):

@@ -35,7 +35,7 @@ from .georef import (
 )
 from .layout import Placement, allowed_orientations, normalize_frame
 from .measures import overlap as overlap_measure
-from .overlap import find_overlap, overlap_strips
+from .overlap import overlap_strips, with_overlap
 from .partial import partial_edges, partial_grid
 from .mosaic import mosaic_size, write_mosaic
 from .report import check_report, report_paths, write_report
@@ -556,9 +556,8 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
         raise TileSetError(f"no tile in {str(tiles_dir)!r} shows ground detail (all are constant or noise-like, "
                            "as open water or haze): no seam can be matched: " + NO_EVIDENCE_ADVICE)
     _check_crs_alone(options.georef, tileset)
-    found = find_overlap(tileset, given=options.overlap, seed=options.seed)
+    tileset, found = with_overlap(tileset, given=options.overlap, seed=options.seed)
     if found.overlap:
-        tileset = replace(tileset, overlap=found.overlap)
         notes.append(found.describe())
     if tileset.skipped:
         notes.append(skipped_note(tileset.skipped))

@@ -9,14 +9,14 @@ shapes, an estimate of run time and memory, and the problems that would stop
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import asdict, dataclass, field
 
 import numpy as np
 
 from .errors import StitchError
 from .georef import anchor_cells, map_units, pixel_size
 from .layout import allowed_orientations
-from .overlap import find_overlap
+from .overlap import with_overlap
 from .search import candidate_shapes, kernels_compiled
 from .seams import auto_tries_prediction, count_blocks, keeps_dense
 from .tiles import read_tileset, skipped_note
@@ -28,8 +28,8 @@ __all__ = ["Inspection", "inspect_tiles"]
 class Inspection:
     """Findings of :func:`inspect_tiles`; ``problems`` empty means solve can run.
 
-    ``overlap`` is :meth:`stitch.overlap.OverlapFinding.facts` with its
-    one-line ``description``, or None when it could not be looked for.
+    ``overlap`` is :meth:`stitch.overlap.OverlapFinding.facts`, or None when
+    it could not be looked for.
     """
 
     folder: str
@@ -131,10 +131,8 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
     overlap_facts = None
     if n >= 2 and not ts.blank.all():
         try:
-            finding = find_overlap(ts, given=overlap, seed=seed)
+            ts, finding = with_overlap(ts, given=overlap, seed=seed)
             overlap_facts = finding.facts()
-            overlap_facts["description"] = finding.describe()
-            ts = replace(ts, overlap=finding.overlap)
         except StitchError as exc:
             problems.append(str(exc))
     duplicates = ts.duplicate_groups()

@@ -149,11 +149,10 @@ def _font(size=14):
 
 def _overlap_text(facts):
     """The overlap line of the page, from ``summary.json``'s ``inputs.overlap``."""
-    if not facts or not facts["pixels"]:
-        return "none" + (" found" if facts and facts["source"] == "none" else " (given)" if facts else "")
-    how = "given" if facts["source"] == "given" else \
-        f"found: {facts['share']:.0%} of {facts['sampled_sides']} sampled sides match"
-    return f"{facts['pixels']} px ({how}); each shared strip is taken from the tile right of or below it"
+    if not facts:
+        return "not looked for"
+    merged = "; each shared strip is taken from the tile right of or below it" if facts["pixels"] else ""
+    return facts["description"] + merged
 
 
 def preview_png(result):

@@ -82,18 +82,17 @@ def _edge_to_edge_sets_have_no_overlap(request, monkeypatch):
     if request.module.__name__.endswith("test_overlap"):
         yield
         return
-    import stitch.pipeline
-    import stitch.preflight
+    import stitch.overlap
 
-    real, found = stitch.pipeline.find_overlap, []
+    real, found = stitch.overlap.find_overlap, []
 
     def recorded(*args, **kwargs):
         finding = real(*args, **kwargs)
         found.append(finding)
         return finding
 
-    monkeypatch.setattr(stitch.pipeline, "find_overlap", recorded)
-    monkeypatch.setattr(stitch.preflight, "find_overlap", recorded)
+    # solve and inspect both search through stitch.overlap.with_overlap.
+    monkeypatch.setattr(stitch.overlap, "find_overlap", recorded)
     yield
     wrong = [f.describe() for f in found if f.overlap and f.source == "found"]
     assert not wrong, f"an overlap was found in tiles cut edge to edge: {wrong}"
