@@ -7,18 +7,18 @@ two true neighbours hold the same ground, which is far stronger evidence
 than how well two edges continue each other.
 
 Finding ``k`` (:func:`find_overlap`): for a sample of tiles, each side's line
-of pixels ``d`` steps in from its edge is compared with the boundary line of
-every side of every tile (both directions, one matrix product per line
-length). If the tiles overlap by ``k``, a side's line at depth ``k - 1`` is
-its neighbour's boundary line: the side's distance to its best partner dips
-at that depth. A side *votes* for the depth of its deepest dip when the dip
-is near-exact: far below the other depths' best distances
-(:data:`DIP_RATIO`) and far below how much the tile's own neighbouring lines
-differ there (:data:`EXACT_SHARE`). Lossy tiles (JPEG) do not match exactly;
-both tests are relative to the set's own pixels, so they still vote. The
-overlap is the depth most sides vote for; votes spread over many depths, or
-a depth few sides vote for, are no overlap or an ambiguous one, which
-:func:`find_overlap` refuses to guess.
+of pixels ``d`` steps in from its edge is compared with the edge line of
+every side of every other tile (both directions, one matrix product per line
+length), as grey levels smoothed along the line so that JPEG noise does not
+hide a copy. If the tiles overlap by ``k``, a side's line at depth ``k - 1``
+is its neighbour's edge line: the distance to the best partner dips there.
+A side *votes* for the depth of a clear dip (:data:`DIP_RATIO` of the depths
+either side; a 1 px overlap, which has a neighbour depth on one side only,
+must also be a near-exact copy, :data:`EXACT_SHARE`, and not a mirrored
+one). Copies of a tile are never its partners. The overlap is the depth most
+sides vote for, by a clear lead; votes spread over many depths are chance,
+and two strong depths, or a lead held by a few sides only, are refused
+rather than guessed.
 
 The seam cost of two overlapping sides (:func:`stitch.measures.overlap`) is
 how badly their shared strips (:func:`overlap_strips`) disagree.
@@ -252,8 +252,7 @@ def find_overlap(tileset, *, given=None, seed=0):
         if not 0 <= given <= limit:
             raise TileSetError(f"--overlap {given} must be between 0 and half the tile size ({limit} px)")
         return OverlapFinding(int(given), "given")
-    depth = limit
-    if depth < 1 or len(tileset) < 2:
+    if limit < 1 or len(tileset) < 2:
         return OverlapFinding(0, "none")
     rng = np.random.default_rng(seed)
     sample = _sample(tileset, rng)
@@ -268,7 +267,7 @@ def find_overlap(tileset, *, given=None, seed=0):
     # the tile's own lines at that depth and the next differ.
     # One depth beyond the deepest overlap, so that a dip there has a
     # neighbour on both sides.
-    probed = min(depth + 1, min(tileset.width, tileset.height) - 1)
+    probed = min(limit + 1, min(tileset.width, tileset.height) - 1)
     best, own, mirror = [], [], []
     for i in sample:
         pixels, mask = read_masked(tileset.folder / tileset.names[i], tileset.nodata, dtype)
@@ -289,7 +288,7 @@ def find_overlap(tileset, *, given=None, seed=0):
             inner = pool[3][which[0]]
             mirror.append(np.mean((g[1] - inner) ** 2) <= EXACT_SHARE * max(own[-1][0], 1e-12))
     best, own = np.array(best), np.array(own)  # (sides, probed): index d is overlap d + 1
-    votes, sides = _votes(best, own, depth, np.array(mirror))
+    votes, sides = _votes(best, own, limit, np.array(mirror))
     return _decide(votes, sides, tileset)
 
 
@@ -315,10 +314,8 @@ def _votes(best, own, limit, mirror):
     after = np.where(inside, finite[rows, np.minimum(d_star + 1, best.shape[1] - 1)], np.inf)
     vote = structured & np.isfinite(low) & (low <= DIP_RATIO * np.minimum(before, after))
     vote &= np.where(d_star > 0, inside, (low <= EXACT_SHARE * own[:, 0]) & ~mirror)
-    counts = {}
-    for d in d_star[vote]:
-        counts[int(d) + 1] = counts.get(int(d) + 1, 0) + 1
-    return counts, int(structured.sum())
+    depths, counts = np.unique(d_star[vote] + 1, return_counts=True)
+    return {int(d): int(c) for d, c in zip(depths, counts)}, int(structured.sum())
 
 
 def _decide(votes, sides, tileset):
