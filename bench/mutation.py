@@ -72,8 +72,8 @@ cli()
 """
 MUTATED = ["stitch/georef.py", "stitch/control.py", "stitch/layout.py", "stitch/mosaic.py", "stitch/puzzles.py"]
 TESTS = ["tests/test_georef.py", "tests/test_control.py", "tests/test_layout.py", "tests/test_metrics.py",
-         "tests/test_roundtrip.py", "tests/test_real_rasters.py", "tests/test_errors.py", "tests/test_outputs.py",
-         "tests/test_rasters.py"]
+         "tests/test_mosaic.py", "tests/test_roundtrip.py", "tests/test_real_rasters.py", "tests/test_errors.py",
+         "tests/test_outputs.py", "tests/test_rasters.py"]
 # Tests that run stitch in a child process, and the fuzzers (slow, and not aimed at these modules).
 LEFT_OUT = ["verbose_shows", "signals_leave", "full_disk", "overviews_are_not_built", "fuzz", "same_seed_same_bytes"]
 
@@ -104,6 +104,8 @@ def main():
     ap.add_argument("--keep", action="store_true", help="keep the scratch copy")
     ap.add_argument("--modules", nargs="+", choices=[Path(m).stem for m in MUTATED],
                     help="mutate only these modules (default: all of them)")
+    ap.add_argument("--max-children", type=int, default=2, metavar="N",
+                    help="mutants tested at once (default 2, one per core here)")
     args = ap.parse_args()
     if shutil.which("mutmut") is None:
         sys.exit("mutmut is not installed: pip install mutmut==3.2.0 tbb (see the module notes on the environment)")
@@ -115,7 +117,7 @@ def main():
         lib = str(Path(sys.prefix) / "lib")
         env = dict(os.environ, NUMBA_THREADING_LAYER="tbb",
                    LD_LIBRARY_PATH=os.pathsep.join(filter(None, [lib, os.environ.get("LD_LIBRARY_PATH")])))
-        subprocess.run([*mutmut, "run", "--max-children", "2"], cwd=copy, env=env)
+        subprocess.run([*mutmut, "run", "--max-children", str(args.max_children)], cwd=copy, env=env)
         results = subprocess.run([*mutmut, "results"], cwd=copy, capture_output=True, text=True).stdout
         survivors = [ln.split(":")[0].strip() for ln in results.splitlines() if ln.strip().endswith("survived")]
         untested = [ln.split(":")[0].strip() for ln in results.splitlines() if ln.strip().endswith("no tests")]
