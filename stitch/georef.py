@@ -333,7 +333,9 @@ def from_anchors(placement, tileset):
                 "their georeferencing or the placement is wrong; pin them or drop one"
             )
     names = ", ".join(tileset.names[i] for i in anchors[:3]) + (" ..." if len(anchors) > 3 else "")
-    return Georeference(ref, ref_crs, f"anchor tile{'s' if len(anchors) > 1 else ''} {names}")
+    # Tiles georeferenced by their cache names (stitch.names) say so.
+    what = "tile name" if all(tileset.georefs[i].source.startswith("tile name") for i in anchors) else "anchor tile"
+    return Georeference(ref, ref_crs, f"{what}{'s' if len(anchors) > 1 else ''} {names}")
 
 
 def anchor_cells(tileset):

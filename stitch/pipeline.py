@@ -38,13 +38,15 @@ from .measures import overlap as overlap_measure
 from .overlap import overlap_strips, with_overlap
 from .partial import partial_edges, partial_grid
 from .mosaic import mosaic_size, write_mosaic
+from .names import DEFAULT_TILE_MATRIX_SET, find_names, flipped_rows, with_names
 from .report import check_report, report_paths, write_report
+from .restore import check_restore_dir, restore_tiles, write_restore_list
 from .confidence import review_labels, run_verdict, side_confidence, tile_confidence
 from .search import Pins, SearchSettings, search_placement
 from .seams import DEFAULT_MEASURE, score_seams
 from .tiles import MAX_TILE_PIXELS, RASTER_SUFFIXES, find_tiles, is_own_output, read_tileset, skipped_note
 
-__all__ = ["SolveOptions", "SolveResult", "default_report_dir", "place_tiles", "solve"]
+__all__ = ["SolveOptions", "SolveResult", "default_report_dir", "place_named", "place_tiles", "read_names", "solve"]
 
 log = logging.getLogger(__name__)
 
@@ -86,6 +88,14 @@ class SolveOptions:
         Pixels each tile shares with each neighbour; found in the pixels when
         None (:func:`stitch.overlap.find_overlap`), 0 for tiles that meet edge
         to edge.
+    tile_scheme : str
+        Which surviving tile names to read (:data:`stitch.names.SCHEMES`):
+        ``"auto"`` any, ``"none"`` no name is trusted.
+    tile_matrix_set : str
+        OGC identifier of the tile matrix set ``z/x/y`` names and quadkeys
+        refer to.
+    restore : path-like or None
+        Folder to write the tiles into under their recovered names.
     """
 
     grid: tuple[int, int] | None = None
@@ -102,6 +112,9 @@ class SolveOptions:
     cog: bool = False
     max_tile_pixels: int = MAX_TILE_PIXELS
     overlap: int | None = None
+    tile_scheme: str = "auto"
+    tile_matrix_set: str = DEFAULT_TILE_MATRIX_SET
+    restore: object = None
 
     def __post_init__(self):
         if self.overlap is not None and self.overlap < 0:
@@ -123,6 +136,8 @@ class SolveOptions:
         g = d["georef"]
         if g.get("crs") is not None:
             g["crs"] = str(g["crs"])
+        if d["restore"] is not None:
+            d["restore"] = str(d["restore"])
         return d
 
 
@@ -160,6 +175,8 @@ class SolveResult:
         When the run began (ISO 8601, UTC).
     overlap : stitch.overlap.OverlapFinding or None
         The overlap the tiles were placed and merged with, and its evidence.
+    restored : tuple of stitch.restore.RestoredTile
+        The tiles written back under their recovered names (``--restore``).
     """
 
     placement: Placement
@@ -178,6 +195,7 @@ class SolveResult:
     review: np.ndarray | None = None
     started: str = ""
     overlap: object = None
+    restored: tuple = ()
 
     @property
     def facts(self):
@@ -199,6 +217,9 @@ def _inside(path, folder):
     except ValueError:
         return False
 
+
+#: The restore list's file in the report folder (``--restore``).
+RESTORE_LIST = "restore.csv"
 
 #: Largest grid, as a multiple of the tile count (a larger one is a typo).
 MAX_GRID_FACTOR = 10
@@ -226,6 +247,8 @@ def check_before_reading(tiles_dir, options):
     for name, row, col in options.pins:
         if name not in names:
             raise OptionError(f"--pin names tile {name!r}, which is not in {str(folder)!r}")
+    # Names that contradict each other stop the run before any pixel is read.
+    find_names(folder, sorted(names), scheme=options.tile_scheme, tile_matrix_set_id=options.tile_matrix_set)
     limit = MAX_GRID_FACTOR * max(n, 2)
     if options.grid is not None and options.grid[0] * options.grid[1] > limit:
         r, c = options.grid
@@ -331,6 +354,11 @@ def _pins(tileset, options):
             cols.append(int(col))
         return Pins(tuple(tiles), tuple(rows), tuple(cols), absolute=True)
     cells = anchor_cells(tileset)
+    named = tileset.tile_names
+    if not cells and named and not named.georeferences:
+        # <base>_<row>_<col> names: cells relative to each other.
+        (r0, c0), *_ = named.cells.values()
+        cells = [(i, r - r0, c - c0) for i, (r, c) in named.cells.items()]
     if not cells:
         return Pins()
     t, r, c = zip(*cells)
@@ -381,10 +409,84 @@ def place_tiles(tileset, options=None, *, progress=None):
         placement = raw  # the pins fix the frame and the cells
     else:
         anchors = [i for i, g in enumerate(tileset.georefs) if g is not None]
+        if tileset.tile_names:  # named tiles are as their cache stored them: upright
+            anchors = sorted(set(anchors) | set(tileset.tile_names.cells))
         placement = normalize_frame(raw, orientations=table.orientations, fit=shape, anchors=anchors, outer=outer)
     conf = tile_confidence(placement, table, result.agreement)
     conf[tileset.blank] = 0.0
     return placement.with_confidence(conf), result, table, pins
+
+
+def read_names(tileset, options=None):
+    """``tileset`` with what its surviving file names say attached
+    (:func:`stitch.names.find_names`, :func:`stitch.names.with_names`):
+    ``z/x/y`` names and quadkeys georeference their tiles, ``<base>_<row>_<col>``
+    names pin them relative to each other."""
+    options = options or SolveOptions()
+    finding = find_names(tileset.folder, tileset.names, scheme=options.tile_scheme,
+                         tile_matrix_set_id=options.tile_matrix_set)
+    return with_names(tileset, finding)
+
+
+#: The search cost by which one reading of ``z/x/y`` rows (XYZ or TMS) must
+#: beat the other for the choice not to be called thin (a share of it).
+ROW_ORDER_MARGIN = 0.01
+
+
+def place_named(tileset, options=None, *, progress=None):
+    """:func:`place_tiles`, settling first whether ``z/x/y`` rows count from
+    the top (XYZ) or the bottom (TMS) when neither the user nor a
+    ``tilemapresource.xml`` said so.
+
+    A named tile that kept a world file or GeoTIFF tags agrees with one
+    reading only, which is taken. Otherwise named tiles in two or more rows are placed both ways, and the reading
+    whose placement costs less wins (the wrong one pins tiles upside down
+    relative to each other, and its seams break). With one row of names the
+    seams cannot tell: XYZ, the web maps' order, is assumed (the finding's
+    ``rows_from`` says ``"assumed"``); a thin lead is added to its notes.
+
+    Returns
+    -------
+    (TileSet, (Placement, SearchResult, SeamTable, Pins))
+        The tile set as read with the reading chosen, and what
+        :func:`place_tiles` returns for it.
+    """
+    options = options or SolveOptions()
+    named = tileset.tile_names
+    if not named or named.scheme not in ("xyz", "tms") or named.rows_from:
+        return tileset, place_tiles(tileset, options, progress=progress)
+    rows = {r for r, _ in named.cells.values()}
+    if len(rows) < 2:
+        return _with_reading(tileset, replace(named, rows_from="assumed"), options, progress)
+    readings = [replace(r, rows_from="seams") for r in (named, flipped_rows(named))]
+    agree = []
+    for reading in readings:  # a named tile's world file or tags may rule one reading out
+        try:
+            with_names(tileset, reading)
+            agree.append(reading)
+        except GeoreferenceError as exc:
+            refused = exc
+    if not agree:
+        raise refused
+    if len(agree) == 1:
+        return _with_reading(tileset, replace(agree[0], rows_from="tiles' own georeferencing"), options, progress)
+    tried = [_with_reading(tileset, r, options, progress) for r in readings]
+    costs = [placed[1].cost for _, placed in tried]
+    best = int(np.argmin(costs))
+    margin = (costs[1 - best] - costs[best]) / max(abs(costs[best]), 1e-12)
+    ts, placed = tried[best]
+    scheme = ts.tile_names.scheme.upper()
+    log.info("z/x/y rows read as %s: search cost %.6g against %.6g", scheme, costs[best], costs[1 - best])
+    if margin < ROW_ORDER_MARGIN:
+        thin = (f"the seams barely tell whether z/x/y rows count from the top (XYZ) or the bottom (TMS): "
+                f"{scheme} costs {margin:.2%} less; give --tile-scheme xyz or tms if you know it")
+        ts = replace(ts, tile_names=replace(ts.tile_names, notes=ts.tile_names.notes + (thin,)))
+    return ts, placed
+
+
+def _with_reading(tileset, finding, options, progress):
+    ts = with_names(tileset, finding)
+    return ts, place_tiles(ts, options, progress=progress)
 
 
 def _doubtful_anchors(placement, tileset, pins, threshold):
@@ -409,7 +511,7 @@ def _check_crs_alone(spec, tileset):
     CRS of anchor tiles that lack one (a world file without a ``.prj``).
     Refuse it otherwise, before the search: alone it places nothing, and
     beside anchors of another CRS it contradicts them."""
-    if spec.crs is None or not spec.is_empty:
+    if spec.crs is None or not spec.is_empty or (tileset.tile_names and tileset.tile_names.georeferences):
         return
     crs = parse_crs(spec.crs)
     anchors = [(name, g) for name, g in zip(tileset.names, tileset.georefs) if g is not None]
@@ -441,6 +543,10 @@ def _georeference(options, placement, tileset):
     """Georeference and, for control points, the fit (or None)."""
     spec = options.georef
     anchored = from_anchors(placement, tileset)
+    named = tileset.tile_names
+    if anchored is not None and named and named.georeferences and anchored.source.startswith("tile name"):
+        anchored = replace(anchored, source=f"{anchored.source} ({named.scheme.upper()}, {named.tile_matrix_set} "
+                                            f"zoom {named.zoom})")
     if anchored is not None and anchored.crs is None and spec.is_empty and spec.crs is not None:
         # World files without a .prj: --crs names their CRS.
         return Georeference(anchored.transform, parse_crs(spec.crs), f"{anchored.source} (CRS from --crs)"), None
@@ -532,6 +638,10 @@ def solve(tiles_dir, output, *, options=None, report_dir=None, overwrite=False, 
     _refuse_inputs(planned, tiles_dir, options.recursive)
     check_outputs([output, world_file_path(output), prj_path(output)], overwrite=overwrite)
     check_report(report_dir, overwrite=overwrite)
+    if options.restore is not None:
+        check_restore_dir(options.restore, tiles_dir, overwrite=overwrite)
+        if report_dir.is_dir():  # else check_report has checked where it will be made
+            check_outputs([report_dir / RESTORE_LIST], overwrite=overwrite)
     check_before_reading(tiles_dir, options)
     # The run owns its output until it ends: a second run on it refuses now
     # rather than racing this one.
@@ -555,17 +665,30 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
     if tileset.structureless().all() and not (options.grid and options.pins):
         raise TileSetError(f"no tile in {str(tiles_dir)!r} shows ground detail (all are constant or noise-like, "
                            "as open water or haze): no seam can be matched: " + NO_EVIDENCE_ADVICE)
-    _check_crs_alone(options.georef, tileset)
     tileset, found = with_overlap(tileset, given=options.overlap, seed=options.seed)
     if found.overlap:
         notes.append(found.describe())
+    tileset = read_names(tileset, options)
+    _check_crs_alone(options.georef, tileset)
     if tileset.skipped:
         notes.append(skipped_note(tileset.skipped))
     notes.extend(_duplicate_notes(tileset))
     timings["read"] = time.perf_counter() - t0
 
     t0 = time.perf_counter()
-    placement, search, table, pins = place_tiles(tileset, options, progress=progress)
+    tileset, (placement, search, table, pins) = place_named(tileset, options, progress=progress)
+    named = tileset.tile_names
+    if named:
+        notes.append(named.describe(len(tileset)))
+        assumed = ["one row of z/x/y names survived, so the seams cannot tell whether rows count from the top "
+                   "(XYZ) or the bottom (TMS): XYZ assumed; give --tile-scheme tms if this cache counts rows from "
+                   "the bottom"] if named.rows_from == "assumed" else []
+        for msg in assumed + list(named.notes):
+            warnings.warn(msg, UserWarning, stacklevel=2)
+            notes.append(msg)
+        named.offset(placement)  # the named tiles sit as their names say, or this says which do not
+    elif named is not None and named.notes:
+        notes.extend(named.notes)
     sides = side_confidence(placement, table, search.agreement)
     sides[tileset.blank] = np.where(np.isnan(sides[tileset.blank]), np.nan, 0.0)  # blank tiles: no evidence
     verdict = run_verdict(placement, table, threshold=options.confidence_threshold,
@@ -589,12 +712,18 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
     if tileset.blank.any():
         notes.append(f"{int(tileset.blank.sum())} blank tile(s) placed with no evidence; check them")
     doubtful = _doubtful_anchors(placement, tileset, pins, options.confidence_threshold)
-    if doubtful:
-        msg = (f"anchor tile(s) {', '.join(doubtful)} sit where their surviving georeferencing puts them, but their "
-               "edges do not fit there (confidence below the threshold): check their GeoTIFF tags or world files; "
-               "one tile off moves the whole mosaic")
-        warnings.warn(msg, UserWarning, stacklevel=2)
-        notes.append(msg)
+    by_name = [n for n in doubtful if named and tileset.names.index(n) in named.cells]
+    doubtful = [n for n in doubtful if n not in by_name]
+    for tiles, why in (
+            (by_name, "sit where their names put them, but their edges do not fit there (confidence below the "
+                      "threshold): check that their names are right; a renamed tile moves the tiles around it"),
+            (doubtful, "sit where their surviving georeferencing puts them, but their edges do not fit there "
+                       "(confidence below the threshold): check their GeoTIFF tags or world files; one tile off "
+                       "moves the whole mosaic")):
+        if tiles:
+            msg = f"{'tile' if tiles is by_name else 'anchor tile'}(s) {', '.join(tiles)} {why}"
+            warnings.warn(msg, UserWarning, stacklevel=2)
+            notes.append(msg)
     ev = search.shape_evidence
     if ev is not None and ev["thin"]:
         r, c = ev["runner_up"]
@@ -618,6 +747,13 @@ def _solve(tiles_dir, output, options, report_dir, overwrite, progress):
             result = SolveResult(placement, georef, tileset, search, options, dict(outputs), timings, tuple(notes),
                                  fit, sides, frozenset(pins.tiles), table.measure, verdict, review, started, found)
             write_report(result, report_dir, overwrite=overwrite)
+            if options.restore is not None:
+                restored = restore_tiles(tileset, placement, options.restore, threshold=options.confidence_threshold,
+                                         overwrite=overwrite)
+                outputs["restore_list"] = write_restore_list(restored, report_dir / RESTORE_LIST,
+                                                             overwrite=overwrite)
+                outputs["restore"] = Path(options.restore)
+                result = replace(result, outputs=dict(outputs), restored=tuple(restored))
     except BaseException:
         if not report_existed and report_dir.is_dir() and not any(report_dir.iterdir()):
             report_dir.rmdir()

@@ -16,6 +16,7 @@ import numpy as np
 from .errors import StitchError
 from .georef import anchor_cells, map_units, pixel_size
 from .layout import allowed_orientations
+from .names import DEFAULT_TILE_MATRIX_SET, find_names, with_names
 from .overlap import with_overlap
 from .search import candidate_shapes, kernels_compiled
 from .seams import auto_tries_prediction, count_blocks, keeps_dense
@@ -29,7 +30,9 @@ class Inspection:
     """Findings of :func:`inspect_tiles`; ``problems`` empty means solve can run.
 
     ``overlap`` is :meth:`stitch.overlap.OverlapFinding.facts`, or None when
-    it could not be looked for.
+    it could not be looked for; ``tile_names`` is
+    :meth:`stitch.names.NameFinding.facts` (the scheme found, how many names
+    survived, zoom and tile range), or None when the names could not be read.
     """
 
     folder: str
@@ -50,6 +53,7 @@ class Inspection:
     anchor_pixel_size: tuple | None = None
     anchor_units: str | None = None
     overlap: dict | None = None
+    tile_names: dict | None = None
     problems: tuple = ()
     notes: tuple = field(default=())
     inferred_grid: tuple | None = None
@@ -81,7 +85,7 @@ def _estimate(n, size, bands, quarter=False):
 
 
 def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=None, infer=False, seed=0,
-                  overlap=None):
+                  overlap=None, tile_scheme="auto", tile_matrix_set=DEFAULT_TILE_MATRIX_SET):
     """Check a tile folder before solving.
 
     Parameters
@@ -135,23 +139,34 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
             overlap_facts = finding.facts()
         except StitchError as exc:
             problems.append(str(exc))
+    name_facts = None
+    try:
+        finding = find_names(ts.folder, ts.names, scheme=tile_scheme, tile_matrix_set_id=tile_matrix_set)
+        ts = with_names(ts, finding)
+        name_facts = finding.facts(n)
+        notes.extend(finding.notes)
+    except StitchError as exc:
+        problems.append(str(exc))
     duplicates = ts.duplicate_groups()
     if duplicates:
         notes.append(f"{len(duplicates)} group(s) of tiles with identical edges: they are interchangeable")
     georef = tuple(name for name, g in zip(ts.names, ts.georefs) if g is not None)
+    if ts.tile_names and ts.tile_names.georeferences:  # named tiles are no surviving tags
+        georef = tuple(name for i, name in enumerate(ts.names) if ts.georefs[i] is not None
+                       and not ts.georefs[i].source.startswith("tile name"))
     first = next((g for g in ts.georefs if g is not None), None)
     anchor_crs = None if first is None or first.crs is None else first.crs.to_string()
     anchor_pixel = None if first is None else pixel_size(first.transform)
     anchor_units = None if first is None else map_units(first.crs)
     agree = None
-    if georef:
+    if georef or (ts.tile_names and ts.tile_names.georeferences):
         try:
             anchor_cells(ts)
             agree = True
         except StitchError as exc:
             agree = False
             problems.append(str(exc))
-    else:
+    elif not (ts.tile_names and ts.tile_names.georeferences):
         notes.append("no tile kept georeferencing: give --bounds, --origin or --gcps with --crs")
     if grid is not None and grid[0] * grid[1] < n:
         problems.append(f"--grid {grid[0]}x{grid[1]} holds {grid[0] * grid[1]} tiles but the folder has {n}")
@@ -165,7 +180,7 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
         nodata=ts.nodata, blank=blank, duplicates=duplicates, georeferenced=georef, anchors_agree=agree,
         grid_shapes=shapes, estimated_seconds=round(seconds, 1), estimated_memory_mb=round(memory),
         kernels_compiled=kernels_compiled(), anchor_crs=anchor_crs, anchor_pixel_size=anchor_pixel,
-        anchor_units=anchor_units, overlap=overlap_facts,
+        anchor_units=anchor_units, overlap=overlap_facts, tile_names=name_facts,
         problems=tuple(problems), notes=tuple(notes), **found,
     )
 

@@ -100,6 +100,8 @@ def summary_dict(result):
                    "bands": result.tileset.count, "dtype": result.tileset.dtype,
                    "nodata": result.tileset.nodata,
                    "overlap": result.overlap.facts() if result.overlap is not None else None,
+                   "tile_names": (result.tileset.tile_names.facts(len(result.tileset))
+                                  if result.tileset.tile_names is not None else None),
                    "blank_tiles": [result.tileset.names[i] for i in np.flatnonzero(result.tileset.blank)]},
         "options": result.options.as_dict(),
         "grid": list(p.shape),

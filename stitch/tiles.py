@@ -221,6 +221,9 @@ class TileSet:
     overlap : int
         Pixels each tile shares with each neighbour (0: tiles meet edge to
         edge); set once found (:func:`stitch.overlap.find_overlap`).
+    tile_names : stitch.names.NameFinding or None
+        What the surviving file names say (:func:`stitch.names.with_names`);
+        None until read.
     """
 
     folder: Path
@@ -237,6 +240,7 @@ class TileSet:
     sizes: np.ndarray | None = None
     skipped: tuple[str, ...] = ()
     overlap: int = 0
+    tile_names: object = None
 
     @property
     def step(self):
