@@ -22,6 +22,7 @@ import typer
 from . import __version__
 from .errors import StitchError
 from .measures import DEFAULT_MEASURE
+from .names import DEFAULT_TILE_MATRIX_SET, SCHEMES
 from .orientation import TURN_MODES
 from .tiles import MAX_TILE_PIXELS
 
@@ -233,6 +234,12 @@ def main_callback(
     """Rebuild georeferenced mosaics from tiles by how their edges continue."""
 
 
+_SCHEME_HELP = (f"Which surviving tile names to trust: {', '.join(SCHEMES)}. auto reads z/x/y paths (XYZ or TMS, "
+                "told by the seams), quadkeys and <base>_<row>_<col> names; named tiles are pinned, and z/x/y "
+                "names and quadkeys also georeference the mosaic.")
+_TMS_HELP = ("OGC tile matrix set of z/x/y names and quadkeys (OGC 17-083r4 identifier, e.g. WorldCRS84Quad).")
+
+
 def _measure_help():
     from .seams import measure_names
 
@@ -288,6 +295,11 @@ def solve(
     cog: Annotated[bool, typer.Option("--cog", help="Write a Cloud Optimized GeoTIFF (GDAL's COG driver).")] = False,
     max_tile_pixels: Annotated[int, typer.Option(metavar="N", help="Refuse tiles whose header claims more pixels.")] = MAX_TILE_PIXELS,
     overlap: Annotated[Optional[int], typer.Option(metavar="PX", help="Pixels each tile repeats of its neighbours; found in the pixels when not given, 0 for none.")] = None,
+    tile_scheme: Annotated[str, typer.Option(metavar="SCHEME", help=_SCHEME_HELP)] = "auto",
+    tile_matrix_set: Annotated[str, typer.Option(metavar="ID", help=_TMS_HELP)] = DEFAULT_TILE_MATRIX_SET,
+    restore: Annotated[Optional[Path], typer.Option(
+        metavar="DIR", help="Also write the tiles into DIR under their recovered names (the z/x/y tree, quadkeys or "
+                            "<base>_<row>_<col>), bytes unchanged; the report's restore.csv lists the flagged ones.")] = None,
     fail_if_doubtful: Annotated[bool, typer.Option(
         "--fail-if-doubtful", help=f"Exit with code {DOUBTFUL_EXIT} when the run's verdict is doubtful "
                                    "(the outputs are still written), for scripts.")] = False,
@@ -312,7 +324,8 @@ def solve(
         size = None if pixel_size is None else (pixel_size, pixel_size_y or pixel_size)
         options = SolveOptions(
             grid=shape, rotations=rotations, mirrored=mirrored, measure=seam, seed=seed, recursive=recursive, pins=pins, cog=cog,
-            max_tile_pixels=max_tile_pixels, overlap=overlap,
+            max_tile_pixels=max_tile_pixels, overlap=overlap, tile_scheme=tile_scheme,
+            tile_matrix_set=tile_matrix_set, restore=restore,
             search=SearchSettings(strategy=search, population=population, generations=generations,
                                   time_limit=time_limit),
             georef=GeorefSpec(bounds=bounds, origin=origin, pixel_size=size, crs=crs,
@@ -336,6 +349,9 @@ def solve(
         typer.echo(_grid_line(p.shape, s.shape_evidence))
     if result.overlap is not None and result.overlap.overlap:
         typer.echo(f"{result.overlap.describe()}; shared strips merged once, from the tile right of or below")
+    named = result.tileset.tile_names
+    if named:
+        typer.echo(named.describe(len(result.tileset)))
     g = result.georeference
     typer.echo(f"georeference: {g.source}" + (f" ({g.crs.to_string()})" if g.crs else ""))
     f = result.facts
@@ -355,6 +371,12 @@ def solve(
         typer.echo(f"{len(flagged)} tile(s) need a look (confidence < {options.confidence_threshold}): {shown}")
     else:
         typer.echo("no tile flagged for review")
+    if result.restored:
+        low = sum(t.flagged for t in result.restored)
+        anew = sum(not t.copied for t in result.restored)
+        typer.echo(f"restored {len(result.restored)} tiles into {restore}" + (f", {anew} turned upright and "
+                   "written anew" if anew else "") + (f"; {low} flagged: check them (restore.csv) before replacing "
+                   "your cache" if low else ""))
     typer.echo(f"verdict: {result.verdict}")
     typer.echo(f"caution: {CAUTION}")
     raise typer.Exit(code=exit_code)
@@ -375,6 +397,11 @@ def cut(
     skip_empty: Annotated[bool, typer.Option("--skip-empty", help="Do not write tiles that hold only nodata, as tilers skip them.")] = False,
     partial: Annotated[bool, typer.Option("--partial", help="Keep the raster's remainder as narrower and shorter tiles in the last column and row.")] = False,
     overlap: Annotated[int, typer.Option(metavar="PX", help="Pixels each tile repeats of its neighbours (tiles start every tile size - PX pixels).")] = 0,
+    layout: Annotated[str, typer.Option(
+        metavar="LAYOUT", help="Tile names: flat, xyz or tms (a z/x/y cache tree; the raster in EPSG:3857 on the "
+                               "tile matrix), quadkey, or rowcol (<stem>_<row>_<col> from 0).")] = "flat",
+    keep_names: Annotated[int, typer.Option(metavar="N", help="With --shuffle and a --layout: this many tiles (random) keep their names.")] = 0,
+    tile_matrix_set: Annotated[str, typer.Option(metavar="ID", help=_TMS_HELP)] = DEFAULT_TILE_MATRIX_SET,
     seed: Seed = 0,
     overwrite: Overwrite = False,
     verbose: Verbose = 0,
@@ -389,7 +416,8 @@ def cut(
         result = cut_raster(raster, output, parse_tile_size(tile_size), shuffle=shuffle, strip_georef=strip_georef,
                             keep_georef=keep_georef, rotations=rotations, mirrored=mirrored, fmt=tile_format, key_path=key,
                             seed=seed, overwrite=overwrite, skip_empty=skip_empty, partial=partial,
-                            overlap=overlap)
+                            overlap=overlap, layout=layout, keep_names=keep_names,
+                            tile_matrix_set_id=tile_matrix_set)
     if not quiet:
         k = result.key
         skipped = k.shape[0] * k.shape[1] - len(k.names)
@@ -439,6 +467,8 @@ def inspect(
     rotations: Annotated[int, typer.Option(metavar="0|180|90", help="Turns a tile may need, as for solve.")] = 0,
     mirrored: Annotated[bool, typer.Option("--mirrored", help="Tiles may also be mirrored, as for solve.")] = False,
     overlap: Annotated[Optional[int], typer.Option(metavar="PX", help="Overlap you would give solve; found in the pixels when not given.")] = None,
+    tile_scheme: Annotated[str, typer.Option(metavar="SCHEME", help=_SCHEME_HELP)] = "auto",
+    tile_matrix_set: Annotated[str, typer.Option(metavar="ID", help=_TMS_HELP)] = DEFAULT_TILE_MATRIX_SET,
     infer: Annotated[bool, typer.Option(
         "--infer", help="Also place the tiles as solve would (nothing written; takes about as long) and report "
                         "the grid found, how sure its inference is and the run's verdict.")] = False,
@@ -454,7 +484,8 @@ def inspect(
     shape = _parse_grid(grid)
     with _errors(verbose):
         found = inspect_tiles(tiles_dir, recursive=recursive, rotations=rotations, mirrored=mirrored, grid=shape,
-                              infer=infer, seed=seed, overlap=overlap)
+                              infer=infer, seed=seed, overlap=overlap, tile_scheme=tile_scheme,
+                              tile_matrix_set=tile_matrix_set)
     if as_json:
         typer.echo(json.dumps(found.as_dict(), indent=2))
     else:
@@ -466,6 +497,8 @@ def inspect(
             typer.echo(f"groups of duplicate tiles: {len(found.duplicates)}")
             if found.overlap is not None:
                 typer.echo(found.overlap["description"])
+            if found.tile_names is not None:
+                typer.echo(found.tile_names["description"])
             facts = []
             if found.anchors_agree is not None:
                 facts.append("they agree" if found.anchors_agree else "they DISAGREE")

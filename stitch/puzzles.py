@@ -41,6 +41,7 @@ from .errors import OptionError, RasterReadError
 from .files import atomic_path, check_outputs, write_text_atomic
 from .georef import prj_path, prj_text, world_file_path, world_file_text
 from .layout import Placement, seam_pairs, write_placement_csv
+from .names import DEFAULT_TILE_MATRIX_SET, quadkey, tile_matrix_set
 from .orientation import TURN_MODES, unorient
 
 __all__ = ["CutResult", "Scores", "cut_raster", "flight_block_mask", "parse_tile_size", "score_placement"]
@@ -122,7 +123,7 @@ def _write_tile(path, pixels, profile, transform, crs, driver, *, overwrite):
 
 def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False, keep_georef=0,
                rotations=0, mirrored=False, fmt="tif", key_path=None, seed=0, overwrite=False, skip_empty=False,
-               partial=False, overlap=0):
+               partial=False, overlap=0, layout="flat", keep_names=0, tile_matrix_set_id=DEFAULT_TILE_MATRIX_SET):
     """Cut a raster into whole tiles and write them with an answer key.
 
     Parameters
@@ -157,6 +158,18 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
     overlap : int
         Pixels each tile repeats of its neighbours, as exports cut with a
         buffer: tiles start every ``tile_size - overlap`` pixels.
+    layout : {"flat", "xyz", "tms", "quadkey", "rowcol"}
+        How tiles are named: ``flat`` as above; a tile cache's ``z/x/y``
+        tree (rows from the top or, ``tms``, from the bottom) or quadkeys,
+        for a raster in the tile matrix set's CRS whose pixels and corner
+        fall on its tile matrix at some zoom (as a tiler writes it); or
+        ``<stem>_<row>_<col>`` from 0 for any raster.
+    keep_names : int
+        With ``shuffle`` and a layout other than ``flat``: this many tiles
+        (at random) keep their name; the others get position-free ones.
+    tile_matrix_set_id : str
+        OGC identifier of the tile matrix set of ``xyz``, ``tms`` and
+        ``quadkey``.
 
     Returns
     -------
@@ -171,6 +184,8 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         raise OptionError(f"--rotations must be one of {sorted(TURN_MODES)}, not {rotations!r}")
     if rotations == 90 and tw != th:
         raise OptionError("quarter turns need square tiles; use --rotations 180 or a square --tile-size")
+    if layout not in LAYOUTS:
+        raise OptionError(f"--layout must be one of {', '.join(LAYOUTS)}, not {layout!r}")
     if not 0 <= overlap < min(tw, th):
         raise OptionError(f"--overlap {overlap} must be at least 0 and less than the tile size ({min(tw, th)} px)")
     sx, sy = tw - overlap, th - overlap
@@ -214,8 +229,19 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
         width = max(4, len(str(n - 1)))
         names = [f"tile_{order[k]:0{width}d}{ext}" if shuffle else f"r{k // cols:03d}_c{k % cols:03d}{ext}"
                  for k in range(n)]
+        if layout != "flat":
+            named = _layout_names(layout, src, Path(raster).stem, rows, cols, (tw, th), overlap, ext,
+                                  tile_matrix_set_id)
+            kept = np.ones(n, bool)
+            if shuffle:
+                kept[:] = False
+                pool = np.flatnonzero(~empty)
+                kept[rng.choice(pool, size=min(keep_names, len(pool)), replace=False)] = True
+            names = [named[k] if kept[k] else names[k] for k in range(n)]
         out_dir.mkdir(parents=True, exist_ok=True)
         written = np.flatnonzero(~empty)
+        for k in written:
+            (out_dir / names[k]).parent.mkdir(parents=True, exist_ok=True)
         check_outputs([out_dir / names[k] for k in written] + [key_path], overwrite=overwrite)
         profile = {"count": src.count, "dtype": src.dtypes[0], "nodata": src.nodata}
         if skip_empty:
@@ -233,6 +259,90 @@ def cut_raster(raster, out_dir, tile_size, *, shuffle=False, strip_georef=False,
     key = Placement(tuple(names[k] for k in w), (rows, cols), w // cols, w % cols, rot[w], mir[w], np.ones(len(w)))
     write_placement_csv(key, key_path, overwrite=overwrite)
     return CutResult(key, out_dir, key_path, tuple(names[k] for k in w if keep[k]), dropped)
+
+
+#: ``cut_raster`` layouts: how tiles are named.
+LAYOUTS = ("flat", "xyz", "tms", "quadkey", "rowcol")
+
+
+def _layout_names(layout, src, stem, rows, cols, size, overlap, ext, tms_id):
+    """Each cell's name in a cache layout, row-major."""
+    if layout == "rowcol":
+        return [f"{stem}_{k // cols}_{k % cols}{ext}" for k in range(rows * cols)]
+    if overlap:
+        raise OptionError(f"--layout {layout}: cache tiles do not overlap; drop --overlap")
+    zoom, x0, y0, height = _matrix_cell(src, size, tms_id)
+    names = []
+    for k in range(rows * cols):
+        r, c = y0 + k // cols, x0 + k % cols
+        if layout == "xyz":
+            names.append(f"{zoom}/{c}/{r}{ext}")
+        elif layout == "tms":
+            names.append(f"{zoom}/{c}/{height - 1 - r}{ext}")
+        else:
+            names.append(f"{quadkey(zoom, c, r)}{ext}")
+    return names
+
+
+def _matrix_cell(src, size, tms_id):
+    """Zoom, column and row (from the top) of the tile at the raster's upper
+    left corner, and the matrix height, for a raster on the tile matrix.
+
+    Raises
+    ------
+    OptionError
+        The raster is not in the matrix set's CRS, or its pixels or corner
+        are off every zoom level's tile matrix.
+    """
+    tms = tile_matrix_set(tms_id)
+    epsg = tms.crs.to_epsg()
+    if src.crs is None or (epsg is not None and src.crs.to_epsg() != epsg):
+        raise OptionError(f"a {tms_id} cache layout needs a raster in EPSG:{epsg}; reproject it onto the tile "
+                          "matrix first (gdalwarp or rasterio.warp)")
+    t = src.transform
+    for zoom in range(tms.minzoom, tms.maxzoom + 1):
+        m = tms.matrix(zoom)
+        if abs(t.a - m.cellSize * m.tileWidth / size[0]) <= 1e-9 * t.a:
+            span_x, span_y = m.cellSize * m.tileWidth, m.cellSize * m.tileHeight
+            cx, cy = (t.c - m.pointOfOrigin[0]) / span_x, (m.pointOfOrigin[1] - t.f) / span_y
+            if max(abs(cx - round(cx)), abs(cy - round(cy))) * size[0] > 1e-6:
+                raise OptionError(f"the raster's upper-left corner is not on a tile corner of {tms_id} zoom "
+                                  f"{zoom} (off by {cx - round(cx):+.4f}, {cy - round(cy):+.4f} tiles); warp it "
+                                  "onto the tile matrix first")
+            return zoom, int(round(cx)), int(round(cy)), m.matrixHeight
+    raise OptionError(f"the raster's pixel size ({t.a:.6g}) is not that of {size[0]} px tiles at any zoom level of "
+                      f"{tms_id}; warp it onto the tile matrix first")
+
+
+def to_tile_matrix(src, dst, zoom, *, tile=256, tms_id=DEFAULT_TILE_MATRIX_SET):
+    """Warp a georeferenced raster onto a tile matrix at ``zoom``, as a tiler
+    does before cutting a cache (then :func:`cut_raster` with ``layout``
+    ``"xyz"``): the matrix set's CRS (EPSG:3857 for WebMercatorQuad), pixels of
+    the matrix at that zoom for ``tile``-pixel tiles, covering the whole
+    tiles that lie entirely inside the raster's footprint (bilinear;
+    nothing outside, so no tile holds nodata). Returns ``dst`` and the
+    ``(zoom, col, row)`` of its upper-left tile."""
+    import morecantile
+    from rasterio.warp import Resampling, reproject, transform_bounds
+
+    tms = morecantile.tms.get(tms_id)
+    with rasterio.open(src) as s:
+        west, south, east, north = transform_bounds(s.crs, "EPSG:4326", *s.bounds)
+        first = tms.tile(west, north, zoom)
+        last = tms.tile(east, south, zoom)
+        c0, r0, c1, r1 = first.x + 1, first.y + 1, last.x - 1, last.y - 1  # whole tiles inside only
+        ul = tms.xy_bounds(morecantile.Tile(c0, r0, zoom))
+        lr = tms.xy_bounds(morecantile.Tile(c1, r1, zoom))
+        cols, rows = (c1 - c0 + 1) * tile, (r1 - r0 + 1) * tile
+        transform = rasterio.transform.from_bounds(ul.left, lr.bottom, lr.right, ul.top, cols, rows)
+        out = np.zeros((s.count, rows, cols), s.dtypes[0])
+        reproject(rasterio.band(s, list(range(1, s.count + 1))), out, dst_transform=transform,
+                  dst_crs=f"EPSG:{tms.crs.to_epsg()}", resampling=Resampling.bilinear)
+        profile = dict(driver="GTiff", width=cols, height=rows, count=s.count, dtype=s.dtypes[0],
+                       crs=f"EPSG:{tms.crs.to_epsg()}", transform=transform)
+    with rasterio.open(dst, "w", **profile) as d:
+        d.write(out)
+    return Path(dst), (zoom, c0, r0)
 
 
 def flight_block_mask(shape, *, angle=25.0, cover=0.5):
