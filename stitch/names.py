@@ -194,6 +194,8 @@ class NameFinding:
         if self.georeferences:
             kind = {"xyz": "z/x/y (XYZ, rows from the top)", "tms": "z/x/y (TMS, rows from the bottom)",
                     "quadkey": "quadkey"}[self.scheme]
+            if self.scheme in ("xyz", "tms") and not self.rows_from:
+                kind = "z/x/y (rows from the top or the bottom: solve tells XYZ from TMS by the seams)"
             how = {"assumed": "; one row of names: XYZ assumed, give --tile-scheme tms if rows count from the "
                               "bottom", "seams": "; XYZ or TMS told by the seams",
                    "tilemapresource.xml": "; TMS from tilemapresource.xml",

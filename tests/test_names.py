@@ -211,3 +211,18 @@ def test_a_name_and_a_world_file_that_disagree_are_refused(tmp_path, rmnp12):
     ts = read_tileset(tmp_path / "c", recursive=True)
     with pytest.raises(GeoreferenceError, match=f"tile '{z}/{c0}/{r0}.png'"):
         read_names(ts, _options(tile_scheme="xyz"))
+
+
+def test_inspect_reports_the_scheme_the_names_and_what_they_imply(tmp_path, rmnp12):
+    """inspect says which scheme the names follow, how many survived, the
+    zoom and the tile range, before any search."""
+    import json
+
+    src, (z, c0, r0) = rmnp12
+    _cut(src, tmp_path / "cache", layout="xyz", keep_names=3)
+    res = CliRunner().invoke(app, ["inspect", str(tmp_path / "cache"), "--recursive", "--json"])
+    assert res.exit_code == 0, res.output
+    facts = json.loads(res.output)["tile_names"]
+    assert facts["scheme"] == "xyz" and facts["named"] == 3 and facts["zoom"] == z
+    assert c0 <= facts["cols"][0] <= facts["cols"][1] < c0 + 7 and r0 <= facts["rows"][0] <= facts["rows"][1] < r0 + 7
+    assert "solve tells XYZ from TMS by the seams" in facts["description"]
