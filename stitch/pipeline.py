@@ -441,7 +441,8 @@ def place_named(tileset, options=None, *, progress=None):
     A named tile that kept a world file or GeoTIFF tags agrees with one
     reading only, which is taken. Otherwise named tiles in two or more rows are placed both ways, and the reading
     whose placement costs less wins (the wrong one pins tiles upside down
-    relative to each other, and its seams break). With one row of names the
+    relative to each other, and its seams break; compared per seam, as the
+    two grids may differ). With one row of names the
     seams cannot tell: XYZ, the web maps' order, is assumed (the finding's
     ``rows_from`` says ``"assumed"``); a thin lead is added to its notes.
 
@@ -471,17 +472,26 @@ def place_named(tileset, options=None, *, progress=None):
     if len(agree) == 1:
         return _with_reading(tileset, replace(agree[0], rows_from="tiles' own georeferencing"), options, progress)
     tried = [_with_reading(tileset, r, options, progress) for r in readings]
-    costs = [placed[1].cost for _, placed in tried]
+    costs = [_cost_per_seam(placed[1]) for _, placed in tried]
     best = int(np.argmin(costs))
     margin = (costs[1 - best] - costs[best]) / max(abs(costs[best]), 1e-12)
     ts, placed = tried[best]
     scheme = ts.tile_names.scheme.upper()
-    log.info("z/x/y rows read as %s: search cost %.6g against %.6g", scheme, costs[best], costs[1 - best])
+    log.info("z/x/y rows read as %s: cost per seam %.6g against %.6g", scheme, costs[best], costs[1 - best])
     if margin < ROW_ORDER_MARGIN:
         thin = (f"the seams barely tell whether z/x/y rows count from the top (XYZ) or the bottom (TMS): "
                 f"{scheme} costs {margin:.2%} less; give --tile-scheme xyz or tms if you know it")
         ts = replace(ts, tile_names=replace(ts.tile_names, notes=ts.tile_names.notes + (thin,)))
     return ts, placed
+
+
+def _cost_per_seam(result):
+    """A search result's cost per seam between placed tiles: the readings'
+    grids may differ (a wrong one can leave a row of holes, and fewer seams
+    cost less in total), so totals are not comparable, means are."""
+    t = result.tiles >= 0
+    seams = int((t[:, :-1] & t[:, 1:]).sum() + (t[:-1] & t[1:]).sum())
+    return result.cost / max(seams, 1)
 
 
 def _with_reading(tileset, finding, options, progress):
