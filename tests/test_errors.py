@@ -545,8 +545,10 @@ def test_signals_leave_no_partial_output(tmp_path, signum, code, word):
                              "--rotations", "90", "--generations", "500", "--population", "150",
                              "--time-limit", "120"],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            # a shell's background job ignores SIGINT, and so would the child
-                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+                            # a shell's background job ignores SIGINT, and a run under nohup
+                            # ignores SIGHUP, and so would the child: as from a terminal
+                            preexec_fn=lambda: [signal.signal(s, signal.SIG_DFL) for s in (signal.SIGINT,
+                                                                                          signal.SIGHUP)])
     time.sleep(6)
     proc.send_signal(signum)
     stdout, stderr = proc.communicate(timeout=60)
