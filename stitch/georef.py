@@ -334,7 +334,7 @@ def from_anchors(placement, tileset):
             )
     names = ", ".join(tileset.names[i] for i in anchors[:3]) + (" ..." if len(anchors) > 3 else "")
     # Tiles georeferenced by their cache names (stitch.names) say so.
-    what = "tile name" if all(tileset.georefs[i].source.startswith("tile name") for i in anchors) else "anchor tile"
+    what = "tile name" if all(tileset.georefs[i].from_name for i in anchors) else "anchor tile"
     return Georeference(ref, ref_crs, f"{what}{'s' if len(anchors) > 1 else ''} {names}")
 
 

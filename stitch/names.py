@@ -257,7 +257,8 @@ class NameFinding:
         transform = Affine((right - left) / tileset.width, 0.0, left, 0.0, (bottom - top) / tileset.height, top)
         epsg = tms.crs.to_epsg()
         crs = CRS.from_epsg(epsg) if epsg else CRS.from_wkt(tms.crs.to_wkt())
-        return TileGeoref(transform, crs, f"tile name {tileset.names[i]} ({self.tile_matrix_set} zoom {self.zoom})")
+        return TileGeoref(transform, crs, f"tile name {tileset.names[i]} ({self.tile_matrix_set} zoom {self.zoom})",
+                          from_name=True)
 
 
 def _bounds(tms, zoom, row, col):
@@ -488,7 +489,7 @@ def with_names(tileset, finding):
         for i in finding.cells:
             named = finding.tile_georef(tileset, i)
             own = georefs[i]
-            if own is not None and not own.source.startswith("tile name"):  # not another reading's
+            if own is not None and not own.from_name:  # not another reading's
                 _check_agree(tileset.names[i], named, own, (tileset.width, tileset.height))
             georefs[i] = named
     return replace(tileset, georefs=tuple(georefs), tile_names=finding)

@@ -150,10 +150,8 @@ def inspect_tiles(folder, *, recursive=False, rotations=0, mirrored=False, grid=
     duplicates = ts.duplicate_groups()
     if duplicates:
         notes.append(f"{len(duplicates)} group(s) of tiles with identical edges: they are interchangeable")
-    georef = tuple(name for name, g in zip(ts.names, ts.georefs) if g is not None)
-    if ts.tile_names and ts.tile_names.georeferences:  # named tiles are no surviving tags
-        georef = tuple(name for i, name in enumerate(ts.names) if ts.georefs[i] is not None
-                       and not ts.georefs[i].source.startswith("tile name"))
+    # Tiles georeferenced by their names kept no tags or world file.
+    georef = tuple(name for name, g in zip(ts.names, ts.georefs) if g is not None and not g.from_name)
     first = next((g for g in ts.georefs if g is not None), None)
     anchor_crs = None if first is None or first.crs is None else first.crs.to_string()
     anchor_pixel = None if first is None else pixel_size(first.transform)

@@ -124,11 +124,15 @@ class TileGeoref:
     crs : rasterio.crs.CRS or None
     source : str
         Where it came from, e.g. ``"GeoTIFF tags"`` or ``"world file a.tfw"``.
+    from_name : bool
+        True when it comes from the tile's cache name
+        (:meth:`stitch.names.NameFinding.tile_georef`), not from the file.
     """
 
     transform: Affine
     crs: CRS | None
     source: str
+    from_name: bool = False
 
 
 def edge_strips(pixels, mask, depth=2):
