@@ -290,14 +290,11 @@ def _read_rowcol(name):
     return m.group("base") or "", sep, int(row), int(col), len(row), len(col)
 
 
-def _has_tms_resource(folder, names, zxy):
-    """Whether a ``tilemapresource.xml`` sits at the root of the named tree."""
+def _has_tms_resource(folder, name):
+    """Whether a ``tilemapresource.xml`` sits at the root of the tree that
+    holds the named tile ``name`` (``root/z/x/y.ext``) or in ``folder``."""
     root = Path(folder).resolve()
-    for i in list(zxy)[:1]:
-        path = root / names[i]
-        if (path.parent.parent.parent / TMS_RESOURCE).is_file():
-            return True
-    return (root / TMS_RESOURCE).is_file()
+    return (root / name).parents[2].joinpath(TMS_RESOURCE).is_file() or (root / TMS_RESOURCE).is_file()
 
 
 def _refuse_doubles(names, cells, what):
@@ -357,7 +354,7 @@ def find_names(folder, names, *, scheme="auto", tile_matrix_set_id=DEFAULT_TILE_
                 if scheme == "tms":
                     finding = flipped_rows(finding)
                 finding = replace(finding, scheme=scheme, rows_from=rows_from)
-            elif _has_tms_resource(folder, names, zxy):
+            elif _has_tms_resource(folder, names[next(iter(zxy))]):
                 finding = replace(flipped_rows(finding), rows_from=TMS_RESOURCE)
             return finding
         keys = {i: PurePosixPath(n).stem for i, n in enumerate(names) if _QUADKEY.match(PurePosixPath(n).stem)}

@@ -458,20 +458,22 @@ def place_named(tileset, options=None, *, progress=None):
         return tileset, place_tiles(tileset, options, progress=progress)
     rows = {r for r, _ in named.cells.values()}
     if len(rows) < 2:
-        return _with_reading(tileset, replace(named, rows_from="assumed"), options, progress)
-    readings = [replace(r, rows_from="seams") for r in (named, flipped_rows(named))]
-    agree = []
-    for reading in readings:  # a named tile's world file or tags may rule one reading out
+        ts = with_names(tileset, replace(named, rows_from="assumed"))
+        return ts, place_tiles(ts, options, progress=progress)
+    # A named tile's world file or tags may rule one reading out.
+    read, refused = [], None
+    for reading in (named, flipped_rows(named)):
         try:
-            with_names(tileset, reading)
-            agree.append(reading)
+            read.append(with_names(tileset, replace(reading, rows_from="seams")))
         except GeoreferenceError as exc:
             refused = exc
-    if not agree:
+    if not read:
         raise refused
-    if len(agree) == 1:
-        return _with_reading(tileset, replace(agree[0], rows_from="tiles' own georeferencing"), options, progress)
-    tried = [_with_reading(tileset, r, options, progress) for r in readings]
+    if len(read) == 1:
+        (ts,) = read
+        ts = replace(ts, tile_names=replace(ts.tile_names, rows_from="tiles' own georeferencing"))
+        return ts, place_tiles(ts, options, progress=progress)
+    tried = [(ts, place_tiles(ts, options, progress=progress)) for ts in read]
     costs = [_cost_per_seam(placed[1]) for _, placed in tried]
     best = int(np.argmin(costs))
     margin = (costs[1 - best] - costs[best]) / max(abs(costs[best]), 1e-12)
@@ -492,11 +494,6 @@ def _cost_per_seam(result):
     t = result.tiles >= 0
     seams = int((t[:, :-1] & t[:, 1:]).sum() + (t[:-1] & t[1:]).sum())
     return result.cost / max(seams, 1)
-
-
-def _with_reading(tileset, finding, options, progress):
-    ts = with_names(tileset, finding)
-    return ts, place_tiles(ts, options, progress=progress)
 
 
 def _doubtful_anchors(placement, tileset, pins, threshold):
